@@ -1,0 +1,1 @@
+"""Bloomline monitor package."""

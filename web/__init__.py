@@ -1,0 +1,1 @@
+"""Bloomline web package."""
