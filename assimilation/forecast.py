@@ -1,0 +1,70 @@
+"""Ensemble forecast statistics: daily quantiles and alert-level exceedance probabilities.
+
+The forecast is the analysis ensemble run forward through the model
+(``assimilation.integrate.simulate``); the probability of reaching a level
+on a day is the fraction of members whose value reaches it at any saved time
+of that day (the ensemble's relative frequency, the usual estimator of an
+event probability from an ensemble; Leutbecher & Palmer 2008, J. Comput.
+Phys. 227:3515).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+QUANTILES = (0.05, 0.25, 0.5, 0.75, 0.95)
+
+
+@dataclass(frozen=True)
+class DailyForecast:
+    """Daily forecast statistics of one quantity per basin.
+
+    ``day_end_d`` (K+1,): epoch day at which each forecast day ends (index 0
+    is the analysis time itself). ``mean`` (K+1, B), ``quantiles`` (Q, K+1, B)
+    for ``QUANTILES``; ``exceedance`` (K+1, B, L): probability of reaching
+    each threshold on that day [-].
+    """
+
+    day_end_d: np.ndarray
+    mean: np.ndarray
+    quantiles: np.ndarray
+    exceedance: np.ndarray
+
+
+def daily_statistics(times_d: np.ndarray, values: np.ndarray, t0_d: float, horizon_days: int,
+                     thresholds: np.ndarray | tuple[float, ...] = ()) -> DailyForecast:
+    """Summarise a forecast trajectory day by day.
+
+    times_d (S,) [epoch days], saved times including ``t0_d``; values (S, M, B)
+    of one quantity (e.g. cyanobacteria chlorophyll-a [µg/L]); thresholds (L,)
+    in the same unit. Day 0 is the snapshot at ``t0_d``; day k ≥ 1 covers
+    (t0 + k − 1, t0 + k]: its mean and quantiles are of the members' daily
+    means, its exceedance counts members whose daily maximum reaches the
+    threshold.
+    """
+    times_d = np.asarray(times_d, dtype=float)
+    values = np.asarray(values, dtype=float)
+    thr = np.asarray(thresholds, dtype=float).reshape(-1)
+    if values.ndim != 3 or values.shape[0] != times_d.shape[0]:
+        raise ValueError(f"values must be (times, members, basins) matching times_d {times_d.shape}; got {values.shape}")
+    eps = 1e-9
+    k0 = np.flatnonzero(np.abs(times_d - t0_d) < 1e-6)
+    if k0.size == 0:
+        raise ValueError(f"times_d must include the analysis time t0_d = {t0_d}")
+    days = [values[k0[0]][None]]
+    for k in range(1, horizon_days + 1):
+        inside = (times_d > t0_d + k - 1 + eps) & (times_d <= t0_d + k + eps)
+        if not inside.any():
+            raise ValueError(f"no saved time inside forecast day {k}")
+        days.append(values[inside])
+    mean_per_member = np.stack([d.mean(axis=0) for d in days])   # (K+1, M, B)
+    max_per_member = np.stack([d.max(axis=0) for d in days])     # (K+1, M, B)
+    exceed = (max_per_member[..., None] >= thr).mean(axis=1)     # (K+1, B, L)
+    return DailyForecast(
+        day_end_d=t0_d + np.arange(horizon_days + 1, dtype=float),
+        mean=mean_per_member.mean(axis=1),
+        quantiles=np.quantile(mean_per_member, QUANTILES, axis=1),
+        exceedance=exceed,
+    )

@@ -1,0 +1,177 @@
+"""Model drivers from the store: observed for the analysis window, forecast for the horizon.
+
+Observed drivers are the stored readings resampled to hourly (pandas):
+water temperature per basin from its buoy, shortwave radiation from the
+water body's weather station, discharge and inflow concentrations from the
+inflow gauges. Forecast drivers use the newest weather forecast issued at or
+before the analysis time; without one, the last two weeks' mean daily cycle
+(a persistence climatology). Water temperature over the horizon relaxes
+from the last observed value toward the air temperature plus the recent
+water–air difference, with a time constant growing with depth (an
+equilibrium-temperature model; Edinger, Duttweiler & Geyer 1968, Water
+Resour. Res. 4:1137).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from sqlalchemy.engine import Engine
+
+from assimilation.spec import Drivers
+from monitor.config import Config, WaterBodyConfig
+from monitor.readings import latest_driver_forecast, readings_frame
+from monitor.timeutil import to_epoch_days
+
+HOUR = pd.Timedelta(hours=1)
+
+#: Used only when a water body has no reading at all of a driver.
+FALLBACK = {
+    "water_temperature": 15.0,     # [°C]
+    "shortwave_radiation": 180.0,  # [W/m²] daily mean, mid-latitude summer (common practice)
+    "air_temperature": 15.0,       # [°C]
+    "discharge": 0.5,              # [m³/s]
+    "nitrate": 500.0,              # [µg N/L]
+    "srp": 10.0,                   # [µg P/L]
+}
+
+
+@dataclass(frozen=True)
+class DriverSources:
+    """Which stations feed which driver of a water body."""
+
+    temperature_stations: tuple[str | None, ...]  # per basin
+    weather_station: str | None
+    gauges: tuple[str, ...]                        # per inflow
+
+
+def driver_sources(config: Config, wb: WaterBodyConfig) -> DriverSources:
+    temps = []
+    for basin in wb.basins:
+        st = [s.id for s in config.stations if s.water_body == wb.id and s.basin == basin.id
+              and "water_temperature" in s.variables]
+        temps.append(st[0] if st else None)
+    return DriverSources(tuple(temps), wb.weather_station, tuple(i.gauge for i in wb.inflows))
+
+
+def _hourly(frame: pd.DataFrame, station: str | None, variable: str, index: pd.DatetimeIndex,
+            fallback: float) -> np.ndarray:
+    """One station's variable on an hourly index: hourly means, interpolated, ends held."""
+    if station is None or frame.empty:
+        return np.full(len(index), fallback)
+    sel = frame[(frame.station_id == station) & (frame.variable == variable)]
+    if sel.empty:
+        return np.full(len(index), fallback)
+    series = sel.set_index("time_utc")["value"].resample("1h").mean()
+    series = series.reindex(series.index.union(index)).interpolate(method="time", limit_direction="both")
+    return series.reindex(index).to_numpy(dtype=float)
+
+
+def observed_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
+                     end: dt.datetime, *, lookback: dt.timedelta = dt.timedelta(days=3)) -> Drivers:
+    """Hourly drivers from ``start`` to ``end`` (aware UTC) from QC-passed readings."""
+    src = driver_sources(config, wb)
+    index = pd.date_range(start, end, freq="1h")
+    if index[-1] < pd.Timestamp(end):
+        index = index.append(pd.DatetimeIndex([pd.Timestamp(end)]))
+    stations = [s for s in (*src.temperature_stations, src.weather_station, *src.gauges) if s]
+    frame = readings_frame(engine, stations=stations,
+                           variables=["water_temperature", "shortwave_radiation", "discharge", "nitrate", "srp"],
+                           start=start - lookback, end=end, max_flag=1)
+    temps = np.column_stack([_hourly(frame, s, "water_temperature", index, FALLBACK["water_temperature"])
+                             for s in src.temperature_stations])
+    light = _hourly(frame, src.weather_station, "shortwave_radiation", index, FALLBACK["shortwave_radiation"])
+    q, n, p = _inflow_columns(frame, src.gauges, index)
+    return Drivers(time_d=np.asarray(to_epoch_days(index)), water_temperature_C=temps,
+                   shortwave_W_m2=np.clip(light, 0.0, None), inflow_m3_s=q,
+                   inflow_nitrogen_ugL=n, inflow_phosphorus_ugL=p)
+
+
+def _inflow_columns(frame, gauges, index):
+    cols = {v: [] for v in ("discharge", "nitrate", "srp")}
+    for g in gauges:
+        for v in cols:
+            cols[v].append(np.clip(_hourly(frame, g, v, index, FALLBACK[v]), 0.0, None))
+    shape = (len(index), 0)
+    return tuple(np.column_stack(cols[v]) if cols[v] else np.zeros(shape) for v in ("discharge", "nitrate", "srp"))
+
+
+def forecast_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                     horizon_days: int, *, temperature_offset_C: float = 0.0) -> Drivers:
+    """Hourly drivers from ``analysis`` to ``analysis + horizon_days``.
+
+    ``temperature_offset_C`` shifts the air-temperature forecast (and so the
+    water temperature) for one driver scenario of the forecast ensemble.
+    """
+    src = driver_sources(config, wb)
+    end = analysis + dt.timedelta(days=horizon_days)
+    index = pd.date_range(analysis, end, freq="1h")
+    past = readings_frame(engine, stations=[s for s in (*src.temperature_stations, src.weather_station, *src.gauges) if s],
+                          variables=["water_temperature", "shortwave_radiation", "air_temperature",
+                                     "discharge", "nitrate", "srp"],
+                          start=analysis - dt.timedelta(days=14), end=analysis, max_flag=1)
+    weather = _weather_outlook(engine, past, src.weather_station, analysis, index)
+    air = weather["air_temperature"] + temperature_offset_C
+    light = np.clip(weather["shortwave_radiation"], 0.0, None)
+    # Equilibrium water temperature: air temperature (24 h running mean) plus the recent
+    # mean water–air difference; relaxation time ≈ 1.5 d per 4 m of depth (common practice).
+    air_daily = pd.Series(air, index=index).rolling(24, min_periods=1).mean().to_numpy()
+    temps = np.empty((len(index), len(wb.basins)))
+    past_air = _daily_mean(past, src.weather_station, "air_temperature")
+    for b, (basin, st) in enumerate(zip(wb.basins, src.temperature_stations)):
+        water = _daily_mean(past, st, "water_temperature")
+        t_now = float(water.iloc[-1]) if len(water) else FALLBACK["water_temperature"]
+        both = pd.concat([water, past_air], axis=1, keys=["w", "a"]).dropna().tail(7)
+        offset = float((both.w - both.a).mean()) if len(both) else 0.0
+        tau_d = 1.5 * max(basin.mean_depth_m, 1.0) / 4.0
+        tw = np.empty(len(index))
+        tw[0] = t_now
+        for k in range(1, len(index)):
+            tw[k] = tw[k - 1] + (air_daily[k] + offset - tw[k - 1]) * (1.0 / 24.0) / tau_d
+        temps[:, b] = tw
+    q, n, p = _inflow_persistence(past, src.gauges, len(index))
+    return Drivers(time_d=np.asarray(to_epoch_days(index)), water_temperature_C=temps,
+                   shortwave_W_m2=light, inflow_m3_s=q, inflow_nitrogen_ugL=n, inflow_phosphorus_ugL=p)
+
+
+def _daily_mean(frame: pd.DataFrame, station: str | None, variable: str) -> pd.Series:
+    if station is None or frame.empty:
+        return pd.Series(dtype=float)
+    sel = frame[(frame.station_id == station) & (frame.variable == variable)]
+    if sel.empty:
+        return pd.Series(dtype=float)
+    return sel.set_index("time_utc")["value"].resample("1D").mean().dropna()
+
+
+def _weather_outlook(engine, past, station, analysis, index) -> dict[str, np.ndarray]:
+    """Air temperature and shortwave over ``index``: the issued forecast, else a persistence climatology."""
+    out = {}
+    fc = latest_driver_forecast(engine, station, issued_at_or_before=analysis) if station else pd.DataFrame()
+    for variable in ("air_temperature", "shortwave_radiation"):
+        sel = fc[fc.variable == variable] if not fc.empty else fc
+        if not sel.empty and sel.valid_utc.max() >= index[-1] - HOUR:
+            s = sel.set_index("valid_utc")["value"].sort_index()
+            s = s[~s.index.duplicated()]
+            s = s.reindex(s.index.union(index)).interpolate(method="time", limit_direction="both")
+            out[variable] = s.reindex(index).to_numpy(dtype=float)
+            continue
+        hist = past[(past.station_id == station) & (past.variable == variable)] if station else past.iloc[0:0]
+        if hist.empty:
+            out[variable] = np.full(len(index), FALLBACK[variable])
+            continue
+        by_hour = hist.set_index("time_utc")["value"].groupby(lambda t: t.hour).mean()
+        out[variable] = by_hour.reindex(range(24)).interpolate(limit_direction="both").to_numpy()[index.hour]
+    return out
+
+
+def _inflow_persistence(past, gauges, n_times):
+    cols = {v: [] for v in ("discharge", "nitrate", "srp")}
+    for g in gauges:
+        for v in cols:
+            s = _daily_mean(past, g, v)
+            value = float(s.iloc[-1]) if len(s) else FALLBACK[v]
+            cols[v].append(np.full(n_times, max(value, 0.0)))
+    return tuple(np.column_stack(cols[v]) if cols[v] else np.zeros((n_times, 0)) for v in ("discharge", "nitrate", "srp"))
