@@ -28,6 +28,12 @@ FILTER_METHODS = ("sqrt", "stochastic")
 BELOW_DETECTION = ("reject", "half", "zero")
 
 #: QC parameters a station may override per variable (see ``monitor.qc``).
+#: Model constants a water body may override (fields of ``assimilation.spec.ModelSpec``).
+MODEL_KEYS = (
+    "par_fraction", "background_attenuation_per_m", "chlorophyll_attenuation_m2_mg",
+    "recycled_fraction", "sediment_phosphorus_release_20_mg_m2_d", "theta_sediment_release",
+)
+
 QC_KEYS = (
     "sensor_min", "sensor_max", "user_min", "user_max",
     "climatology_min", "climatology_max",
@@ -88,6 +94,7 @@ class WaterBodyConfig:
     basins: tuple[BasinConfig, ...]
     inflows: tuple[InflowConfig, ...]
     alerts: AlertConfig
+    model: Mapping[str, float] = field(default_factory=dict)  # ModelSpec constants overridden for this water body
 
     def basin_index(self, basin_id: str) -> int:
         return [b.id for b in self.basins].index(basin_id)
@@ -442,10 +449,19 @@ def _water_body(r: _Reader) -> WaterBodyConfig:
     if alerts.clear_after_cycles < 1:
         raise a.error("clear_after_cycles", f"expected at least 1, got {alerts.clear_after_cycles}")
     a.finish()
+    mr = r.sub("model")
+    model = {}
+    for key in list(mr.table):
+        if key not in MODEL_KEYS:
+            raise mr.error(key, f"unknown model constant; expected one of {', '.join(MODEL_KEYS)}")
+        model[key] = mr.get(key, float)
+        if model[key] < 0:
+            raise mr.error(key, f"expected a non-negative number, got {model[key]}")
+    mr.finish()
     wb = WaterBodyConfig(
         id=wid, name=r.get("name", str, wid), use=use, timezone=_timezone(r, "timezone", "UTC"),
         weather_station=r.get("weather_station", str, None),
-        basins=tuple(basins), inflows=tuple(inflows), alerts=alerts)
+        basins=tuple(basins), inflows=tuple(inflows), alerts=alerts, model=model)
     r.finish()
     return wb
 
