@@ -1,0 +1,181 @@
+"""Observations and observation operators for Bloomline's filter.
+
+Kinds of reading (canonical variable names, DEVELOPERS.md) and what each sees
+of one basin's state (µg/L):
+
+=========================== =================================================
+``chlorophyll_fluorescence`` gain · sum over groups of chlorophyll-a
+``phycocyanin``              gain · chlorophyll-a of the cyanobacteria groups
+``chlorophyll_a``            sum over groups of chlorophyll-a (lab, extracted)
+``nitrate``                  dissolved inorganic nitrogen N (lab)
+``srp``                      soluble reactive phosphorus P (lab)
+=========================== =================================================
+
+The gain is that of the in-situ sensor named by ``sensor`` (estimated by the
+filter, index into the sensor gains), or 1 when ``sensor`` is -1.
+High-frequency sensor readings are aggregated into windows
+(:func:`aggregate_windows`) before they are assimilated. Missing or
+QC-failed readings are never passed in; non-finite values are rejected.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+OBSERVABLE_KINDS = ("chlorophyll_fluorescence", "phycocyanin", "chlorophyll_a", "nitrate", "srp")
+
+#: Default fraction of the window mean taken as representativeness error
+#: (the window mean stands for the basin at one instant). [-] A choice of
+#: Bloomline's; 10 % is of the order used for in-situ chlorophyll
+#: fluorescence (common practice).
+REPRESENTATIVENESS_FRACTION = 0.1
+
+
+@dataclass(frozen=True)
+class Observations:
+    """Readings to assimilate, arrays of equal length p.
+
+    time_d [epoch days]; kind [str, one of OBSERVABLE_KINDS]; basin [index];
+    sensor [index of the sensor whose gain is estimated, -1 none]; value
+    [µg/L, N as N and P as P]; error_sd [µg/L, > 0].
+    """
+
+    time_d: np.ndarray
+    kind: np.ndarray
+    basin: np.ndarray
+    sensor: np.ndarray
+    value: np.ndarray
+    error_sd: np.ndarray
+
+    def __post_init__(self):
+        fields = {
+            "time_d": np.asarray(self.time_d, dtype=float).ravel(),
+            "kind": np.asarray(self.kind, dtype=str).ravel(),
+            "basin": np.asarray(self.basin, dtype=int).ravel(),
+            "sensor": np.asarray(self.sensor, dtype=int).ravel(),
+            "value": np.asarray(self.value, dtype=float).ravel(),
+            "error_sd": np.asarray(self.error_sd, dtype=float).ravel(),
+        }
+        p = fields["time_d"].size
+        for name, arr in fields.items():
+            if arr.size != p:
+                raise ValueError(f"Observations.{name} has {arr.size} entries, expected {p} like time_d")
+            object.__setattr__(self, name, arr)
+        unknown = sorted(set(fields["kind"].tolist()) - set(OBSERVABLE_KINDS))
+        if unknown:
+            raise ValueError(f"unknown observation kind(s) {unknown}; expected one of {OBSERVABLE_KINDS}")
+        if not np.all(np.isfinite(fields["value"])) or not np.all(np.isfinite(fields["time_d"])):
+            raise ValueError("Observations.value and time_d must be finite (pass only QC-passed readings)")
+        if np.any(~(fields["error_sd"] > 0)):
+            raise ValueError("Observations.error_sd must be > 0 [µg/L]")
+        if np.any(fields["basin"] < 0) or np.any(fields["sensor"] < -1):
+            raise ValueError("Observations.basin must be >= 0 and sensor >= -1")
+
+    @staticmethod
+    def empty() -> "Observations":
+        """No readings."""
+        return Observations(np.zeros(0), np.zeros(0, dtype=str), np.zeros(0, dtype=int),
+                            np.zeros(0, dtype=int), np.zeros(0), np.zeros(0))
+
+    def __len__(self) -> int:
+        return int(self.time_d.size)
+
+    def select(self, mask) -> "Observations":
+        """The readings where ``mask`` (boolean or index array) holds."""
+        return Observations(self.time_d[mask], self.kind[mask], self.basin[mask],
+                            self.sensor[mask], self.value[mask], self.error_sd[mask])
+
+
+def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
+                      representativeness_fraction: float = REPRESENTATIVENESS_FRACTION) -> Observations:
+    """Aggregate readings into one value per (kind, basin, sensor, window).
+
+    Windows are [k·window_d, (k+1)·window_d) in epoch days [d]; the result is
+    stamped at the window's end. Value: the mean of the n readings. Error
+    variance: instrument part mean(sd_i²)/n (independent errors average
+    down) plus a representativeness part, the larger of
+    (representativeness_fraction · |mean|)² and the variability within the
+    window beyond instrument noise, max(s² − mean(sd_i²), 0), where s² is the
+    sample variance of the readings. The window mean stands for the basin at
+    one instant, so its real variability is not divided by n (representativeness
+    error in the sense of Janjić et al. 2018, Q. J. R. Meteorol. Soc.
+    144:1257). Sorted by time, kind, basin, sensor.
+    """
+    if not window_d > 0:
+        raise ValueError(f"window_d must be > 0 [d], got {window_d!r}")
+    if not representativeness_fraction >= 0:
+        raise ValueError(f"representativeness_fraction must be >= 0, got {representativeness_fraction!r}")
+    if len(obs) == 0:
+        return Observations.empty()
+    window = np.floor(obs.time_d / window_d).astype(np.int64)
+    kind_code = np.searchsorted(np.array(sorted(OBSERVABLE_KINDS)), obs.kind)
+    keys = np.stack([window, kind_code, obs.basin, obs.sensor], axis=1)
+    uniq, group = np.unique(keys, axis=0, return_inverse=True)
+    group = group.ravel()
+    g = uniq.shape[0]
+    n = np.bincount(group, minlength=g).astype(float)
+    mean = np.bincount(group, weights=obs.value, minlength=g) / n
+    dev2 = (obs.value - mean[group]) ** 2
+    sample_var = np.where(n > 1, np.bincount(group, weights=dev2, minlength=g) / np.maximum(n - 1, 1), 0.0)
+    instr_var = np.bincount(group, weights=obs.error_sd**2, minlength=g) / n
+    repr_var = np.maximum((representativeness_fraction * np.abs(mean)) ** 2,
+                          np.maximum(sample_var - instr_var, 0.0))
+    error_sd = np.sqrt(instr_var / n + repr_var)
+    kinds = np.array(sorted(OBSERVABLE_KINDS))[uniq[:, 1]]
+    order = np.lexsort((uniq[:, 3], uniq[:, 2], kinds, uniq[:, 0]))
+    return Observations(
+        time_d=((uniq[:, 0] + 1) * window_d)[order].astype(float),
+        kind=kinds[order],
+        basin=uniq[order, 2],
+        sensor=uniq[order, 3],
+        value=mean[order],
+        error_sd=error_sd[order],
+    )
+
+
+def operator_matrix(obs: Observations, n_basins: int, n_groups: int, cyanobacteria) -> np.ndarray:
+    """Linear part H (p, n_state) of the observation operators [-].
+
+    The state of one member is basin-major ``[N_b, P_b, A_b,0 … A_b,G-1]``
+    (DEVELOPERS.md, "The model state layout"). cyanobacteria: (G,) booleans
+    marking the groups a phycocyanin sensor sees. The sensor gain is applied
+    by :func:`predict`.
+    """
+    cyano = np.asarray(cyanobacteria, dtype=bool).ravel()
+    if cyano.size != n_groups:
+        raise ValueError(f"cyanobacteria mask has {cyano.size} entries, expected {n_groups} groups")
+    if np.any(obs.basin >= n_basins):
+        raise ValueError(f"observation basin index out of range (model has {n_basins} basins)")
+    stride = 2 + n_groups
+    p = len(obs)
+    H = np.zeros((p, n_basins * stride))
+    rows = np.arange(p)
+    base = obs.basin * stride
+    is_n = obs.kind == "nitrate"
+    is_p = obs.kind == "srp"
+    H[rows[is_n], base[is_n]] = 1.0
+    H[rows[is_p], base[is_p] + 1] = 1.0
+    all_chl = (obs.kind == "chlorophyll_fluorescence") | (obs.kind == "chlorophyll_a")
+    is_pc = obs.kind == "phycocyanin"
+    for g in range(n_groups):  # loop over phytoplankton groups (a few), not members
+        H[rows[all_chl], base[all_chl] + 2 + g] = 1.0
+        if cyano[g]:
+            H[rows[is_pc], base[is_pc] + 2 + g] = 1.0
+    return H
+
+
+def predict(states: np.ndarray, gains: np.ndarray, obs: Observations, H: np.ndarray) -> np.ndarray:
+    """Predicted observations HE (M, p) [µg/L].
+
+    states (M, n_state) [µg/L]; gains (M, n_sensors) [-]; H from
+    :func:`operator_matrix`. Readings with sensor >= 0 are multiplied by
+    that member's sensor gain.
+    """
+    HE = states @ H.T
+    has_gain = obs.sensor >= 0
+    if np.any(has_gain):
+        if gains.shape[1] <= obs.sensor.max():
+            raise ValueError(f"observation sensor index {obs.sensor.max()} but only {gains.shape[1]} sensor gains")
+        HE[:, has_gain] *= gains[:, obs.sensor[has_gain]]
+    return HE
