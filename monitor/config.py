@@ -214,6 +214,7 @@ class ServiceConfig:
     base_url: str
     host: str
     port: int
+    dask_scheduler: str | None = None  # "tcp://host:8786", "local", or None for in-process
 
 
 @dataclass(frozen=True)
@@ -557,7 +558,8 @@ def parse_config(data: Mapping[str, Any], path: Path | None = None) -> Config:
         archive_dir=_resolve(base, s.get("archive_dir", str, "archive")),
         mailbox_dir=_resolve(base, mailbox) if mailbox else None,
         base_url=s.get("base_url", str, "http://127.0.0.1:8050"),
-        host=s.get("host", str, "127.0.0.1"), port=s.get("port", int, 8050))
+        host=s.get("host", str, "127.0.0.1"), port=s.get("port", int, 8050),
+        dask_scheduler=s.get("dask_scheduler", str, None))
     s.finish()
     sc = top.sub("schedule")
     schedule = ScheduleConfig(cycle_at_utc=sc.get("cycle_at_utc", str, "06:00"),

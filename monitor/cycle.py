@@ -174,8 +174,7 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
     frame = observations_frame(engine, config, wb, start, analysis)
     drivers = observed_drivers(engine, config, wb, start, analysis)
     horizon = wb.alerts.horizon_days
-    scenarios = [forecast_drivers(engine, config, wb, analysis, horizon, temperature_offset_C=off)
-                 for off in DRIVER_SCENARIOS_C]
+    scenarios = forecast_drivers(engine, config, wb, analysis, horizon, temperature_offsets_C=DRIVER_SCENARIOS_C)
     return CycleInputs(
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,

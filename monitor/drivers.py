@@ -100,11 +100,12 @@ def _inflow_columns(frame, gauges, index):
 
 
 def forecast_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-                     horizon_days: int, *, temperature_offset_C: float = 0.0) -> Drivers:
-    """Hourly drivers from ``analysis`` to ``analysis + horizon_days``.
+                     horizon_days: int, *, temperature_offsets_C: tuple[float, ...] = (0.0,)) -> list[Drivers]:
+    """Hourly drivers from ``analysis`` to ``analysis + horizon_days``, one per scenario.
 
-    ``temperature_offset_C`` shifts the air-temperature forecast (and so the
-    water temperature) for one driver scenario of the forecast ensemble.
+    Each entry of ``temperature_offsets_C`` shifts the air-temperature outlook
+    (and so the water temperature) for one driver scenario of the forecast
+    ensemble [°C].
     """
     src = driver_sources(config, wb)
     end = analysis + dt.timedelta(days=horizon_days)
@@ -114,27 +115,35 @@ def forecast_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, analys
                                      "discharge", "nitrate", "srp"],
                           start=analysis - dt.timedelta(days=14), end=analysis, max_flag=1)
     weather = _weather_outlook(engine, past, src.weather_station, analysis, index)
-    air = weather["air_temperature"] + temperature_offset_C
     light = np.clip(weather["shortwave_radiation"], 0.0, None)
-    # Equilibrium water temperature: air temperature (24 h running mean) plus the recent
-    # mean water–air difference; relaxation time ≈ 1.5 d per 4 m of depth (common practice).
-    air_daily = pd.Series(air, index=index).rolling(24, min_periods=1).mean().to_numpy()
-    temps = np.empty((len(index), len(wb.basins)))
     past_air = _daily_mean(past, src.weather_station, "air_temperature")
-    for b, (basin, st) in enumerate(zip(wb.basins, src.temperature_stations)):
+    start_temps, offsets, taus = [], [], []
+    for basin, st in zip(wb.basins, src.temperature_stations):
         water = _daily_mean(past, st, "water_temperature")
-        t_now = float(water.iloc[-1]) if len(water) else FALLBACK["water_temperature"]
+        start_temps.append(float(water.iloc[-1]) if len(water) else FALLBACK["water_temperature"])
         both = pd.concat([water, past_air], axis=1, keys=["w", "a"]).dropna().tail(7)
-        offset = float((both.w - both.a).mean()) if len(both) else 0.0
-        tau_d = 1.5 * max(basin.mean_depth_m, 1.0) / 4.0
-        tw = np.empty(len(index))
-        tw[0] = t_now
-        for k in range(1, len(index)):
-            tw[k] = tw[k - 1] + (air_daily[k] + offset - tw[k - 1]) * (1.0 / 24.0) / tau_d
-        temps[:, b] = tw
+        offsets.append(float((both.w - both.a).mean()) if len(both) else 0.0)
+        # relaxation time ≈ 1.5 d per 4 m of depth (common practice)
+        taus.append(1.5 * max(basin.mean_depth_m, 1.0) / 4.0)
     q, n, p = _inflow_persistence(past, src.gauges, len(index))
-    return Drivers(time_d=np.asarray(to_epoch_days(index)), water_temperature_C=temps,
-                   shortwave_W_m2=light, inflow_m3_s=q, inflow_nitrogen_ugL=n, inflow_phosphorus_ugL=p)
+    out = []
+    for shift in temperature_offsets_C:
+        air_daily = pd.Series(weather["air_temperature"] + shift, index=index).rolling(24, min_periods=1).mean()
+        temps = _relax(np.asarray(start_temps), air_daily.to_numpy()[:, None] + np.asarray(offsets),
+                       np.asarray(taus), 1.0 / 24.0)
+        out.append(Drivers(time_d=np.asarray(to_epoch_days(index)), water_temperature_C=temps,
+                           shortwave_W_m2=light, inflow_m3_s=q, inflow_nitrogen_ugL=n, inflow_phosphorus_ugL=p))
+    return out
+
+
+def _relax(start: np.ndarray, equilibrium: np.ndarray, tau_d: np.ndarray, dt_d: float) -> np.ndarray:
+    """Water temperature relaxing toward the equilibrium temperature: dT/dt = (Te − T)/tau. [°C]"""
+    temps = np.empty_like(equilibrium)
+    temps[0] = start
+    decay = np.exp(-dt_d / tau_d)
+    for k in range(1, equilibrium.shape[0]):
+        temps[k] = equilibrium[k] + (temps[k - 1] - equilibrium[k]) * decay
+    return temps
 
 
 def _daily_mean(frame: pd.DataFrame, station: str | None, variable: str) -> pd.Series:
