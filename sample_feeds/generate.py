@@ -64,7 +64,7 @@ class Basin:
 
 
 BASINS = (
-    Basin("corrisdale", "fennick-arm", "CR-FA", 4.0e6, 4.0, 1.0e6, 4.0, 0.85, 12.0, 0.08),
+    Basin("corrisdale", "fennick-arm", "CR-FA", 4.0e6, 4.0, 1.0e6, 4.0, 0.85, 14.0, 0.08),
     Basin("corrisdale", "middle-reach", "CR-MR", 12.0e6, 8.0, 1.5e6, 6.0, 0.60, 2.2, 0.04),
     Basin("corrisdale", "dam-basin", "CR-DB", 20.0e6, 15.0, 1.33e6, 7.0, 0.45, 1.0, 0.03),
     Basin("sorrel-lake", "main", "SL-01", 1.5e6, 3.0, 0.5e6, 3.0, 0.50, 0.20, 0.03),
@@ -179,9 +179,9 @@ def make_weather(rng: np.random.Generator, storms, n_hours: int, t0_utc: pd.Time
            + diurnal_amp * np.cos(2 * np.pi * (hour_local - 15.0) / 24.0)
            + rng.normal(0, 0.3, n_hours))
     log_wind = (np.log(3.0) + _ar1(rng, n_hours, np.exp(-1.0 / 36.0), 0.38)
-                + 0.9 * storm - 0.45 * warm
+                + 0.6 * np.tanh(storm) - 0.45 * warm
                 + 0.25 * np.cos(2 * np.pi * (hour_local - 15.0) / 24.0))
-    wind = np.clip(np.exp(log_wind + rng.normal(0, 0.12, n_hours)), 0.2, None)
+    wind = np.clip(np.exp(log_wind + rng.normal(0, 0.12, n_hours)), 0.2, 20.0)
     return pd.DataFrame({"time_utc": times, "air_temp_c": air, "shortwave_wm2": shortwave,
                          "wind_ms": wind, "cloud": cloud, "clear": clear})
 
@@ -490,8 +490,10 @@ def make_buoy_series(rng: np.random.Generator, sensor: BuoySensor, basin_index: 
             arr[idx[~high]] = rng.uniform(-1.0, 0.0, (~high).sum())
         else:
             arr[idx] = arr[idx] + rng.choice([-1, 1], count) * rng.uniform(4.0, 9.0, count)
-        events.append({"kind": "spikes", "site": sensor.site, "start_local": "", "end_local": "",
-                       "detail": f"{name}: {count} spikes"})
+        for k in np.sort(idx):
+            stamp = local[k].strftime("%Y-%m-%d %H:%M")
+            events.append({"kind": "spike", "site": sensor.site, "start_local": stamp,
+                           "end_local": stamp, "detail": name})
 
     # single missing values
     for arr in (chl, pc, temp):
@@ -646,7 +648,7 @@ def daily_truth(truth: dict, local: pd.DatetimeIndex) -> pd.DataFrame:
 def summary_text(daily: pd.DataFrame) -> str:
     lines = ["Bloomline demo season 2026-05-01 .. 2026-10-31 (truth, daily means, local dates)",
              f"{'basin':26s} {'>1':>6s} {'>10':>6s} {'>50':>6s}  {'peak cyano':>10s} {'on':>6s}"
-             f"  {'max growth':>10s}  {'max tot chl':>11s}"]
+             f"  {'max rise/d':>10s}  {'max tot chl':>11s}"]
     for (wb, basin), d in daily.groupby(["water_body", "basin"], sort=False):
         c = d["chl_cyanobacteria_ugL"].to_numpy()
         dates = d["date"].to_numpy()
@@ -654,7 +656,7 @@ def summary_text(daily: pd.DataFrame) -> str:
         def first(level):
             k = np.flatnonzero(c > level)
             return dates[k[0]][5:] if k.size else "-"
-        growth = np.max(np.abs(np.diff(np.log(c)))) * 100
+        growth = np.max(np.expm1(np.diff(np.log(c)))) * 100      # largest day-to-day rise
         kp = int(np.argmax(c))
         lines.append(f"{wb + '/' + basin:26s} {first(1):>6s} {first(10):>6s} {first(50):>6s}  "
                      f"{c[kp]:10.1f} {dates[kp][5:]:>6s}  {growth:8.1f} %  {d['chl_total_ugL'].max():11.1f}")
