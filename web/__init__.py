@@ -1,1 +1,93 @@
-"""Bloomline web package."""
+"""Bloomline's web app: status pages, the JSON/CSV API and subscriptions.
+
+``create_app(config=None)`` builds the Flask app. ``config`` is a
+:class:`monitor.config.Config`, a path to the TOML file, or None to read the
+path from the environment variable ``BLOOMLINE_CONFIG``. The store is
+opened (and migrated) with :func:`monitor.db.open_store`. Views read and
+write only through ``monitor`` store functions.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import importlib
+import importlib.util
+import os
+from typing import Callable
+
+from flask import Flask, current_app, jsonify, render_template, request
+from werkzeug.exceptions import HTTPException
+
+from monitor.caution import CAUTION
+from monitor.config import Config, load_config
+from monitor.db import open_store
+
+ENV_CONFIG = "BLOOMLINE_CONFIG"
+
+
+def _utcnow() -> dt.datetime:
+    return dt.datetime.now(dt.timezone.utc)
+
+
+def _resolve_config(config) -> Config:
+    if isinstance(config, Config):
+        return config
+    if config is None:
+        path = os.environ.get(ENV_CONFIG)
+        if not path:
+            raise RuntimeError(f"no configuration: pass create_app(config) or set {ENV_CONFIG} to the TOML file")
+        return load_config(path)
+    return load_config(config)
+
+
+def create_app(config: Config | str | os.PathLike | None = None, *,
+               clock: Callable[[], dt.datetime] | None = None) -> Flask:
+    """The Flask app over the store named by ``config.service.database_url``.
+
+    ``clock`` returns the current aware UTC time (injected by tests; the
+    wall clock by default).
+    """
+    cfg = _resolve_config(config)
+    app = Flask(__name__)
+    app.config["JSON_SORT_KEYS"] = False
+    app.json.sort_keys = False
+    app.extensions["bloomline"] = {
+        "config": cfg,
+        "engine": open_store(cfg.service.database_url),
+        "clock": clock or _utcnow,
+    }
+
+    from web.api import api
+    from web.pages import pages
+
+    app.register_blueprint(pages)
+    app.register_blueprint(api, url_prefix="/api/v1")
+    if importlib.util.find_spec("web.push") is not None:
+        # The push endpoint is optional; if the module exists it must import cleanly.
+        app.register_blueprint(importlib.import_module("web.push").push_api)
+
+    @app.context_processor
+    def _globals():
+        return {"caution": CAUTION, "bloomline_config": cfg}
+
+    @app.errorhandler(HTTPException)
+    def _http_error(exc: HTTPException):
+        if request.path.startswith("/api/"):
+            response = jsonify({"error": {"status": exc.code, "name": exc.name, "message": exc.description}})
+            response.status_code = exc.code or 500
+            return response
+        return render_template("error.html", error=exc), exc.code or 500
+
+    return app
+
+
+def get_config() -> Config:
+    return current_app.extensions["bloomline"]["config"]
+
+
+def get_engine():
+    return current_app.extensions["bloomline"]["engine"]
+
+
+def now() -> dt.datetime:
+    return current_app.extensions["bloomline"]["clock"]()

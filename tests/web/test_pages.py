@@ -1,0 +1,53 @@
+"""HTML pages: status, water body, charts and the sign-up forms."""
+
+from __future__ import annotations
+
+import re
+
+from monitor.caution import CAUTION
+from monitor.frameworks import FRAMEWORKS
+
+
+def test_status_page_names_framework_levels_and_carries_the_caution(client):
+    r = client.get("/")
+    html = r.get_data(as_text=True)
+    assert r.status_code == 200
+    assert CAUTION in html
+    assert FRAMEWORKS["who-2003-recreation"].title in html
+    assert "West Bay" in html and "East Bay" in html
+    # no basin has a level yet: it says so, and never calls the water safe
+    assert "No alert level forecast" in html
+    assert "safe" not in html.lower().replace("safety clearance", "")
+
+
+def test_status_page_shows_the_highest_probability_within_the_horizon(client):
+    html = client.get("/").get_data(as_text=True)
+    # West Bay's p_level_1 over days 1..3 of the latest run is 0.45, 0.62, 0.80 → 80 %
+    assert re.search(r"West Bay.*?80 %", html, re.S)
+
+
+def test_water_body_page_links_its_charts_and_they_render(client):
+    html = client.get("/water-bodies/quillmere").get_data(as_text=True)
+    assert CAUTION in html
+    srcs = re.findall(r'<img src="([^"]+)"', html)
+    assert srcs == ["/water-bodies/quillmere/basins/west/forecast.svg",
+                    "/water-bodies/quillmere/basins/east/forecast.svg"]
+    svg = client.get(srcs[0])
+    assert svg.status_code == 200 and svg.mimetype == "image/svg+xml"
+    assert svg.data.lstrip().startswith(b"<?xml") and b"<svg" in svg.data
+    png = client.get("/water-bodies/quillmere/basins/west/forecast.png")
+    assert png.mimetype == "image/png" and png.data[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (RFC 2083)
+
+
+def test_pages_use_no_remote_resources(client):
+    for url in ("/", "/water-bodies/quillmere", "/subscribe"):
+        html = client.get(url).get_data(as_text=True)
+        assert not re.search(r'(src|href)="(https?:)?//', html), url
+    with client.get("/static/bloomline.css") as css:
+        assert css.status_code == 200 and "url(" not in css.get_data(as_text=True)
+
+
+def test_unknown_water_body_basin_and_chart_format_are_404(client):
+    assert client.get("/water-bodies/nowhere").status_code == 404
+    assert client.get("/water-bodies/quillmere/basins/nowhere/forecast.png").status_code == 404
+    assert client.get("/water-bodies/quillmere/basins/west/forecast.gif").status_code == 404
