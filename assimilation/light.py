@@ -1,0 +1,57 @@
+"""Light limitation: Steele's curve, Beer–Lambert attenuation, Secchi depth.
+
+[1] Steele, J.H. (1962) Environmental control of photosynthesis in the sea.
+    Limnology and Oceanography 7:137–150.
+[2] Di Toro, D.M., O'Connor, D.J. and Thomann, R.V. (1971) A dynamic model of
+    the phytoplankton population in the Sacramento–San Joaquin Delta.
+    Advances in Chemistry 106:131–180 (depth integral of Steele's curve).
+[3] Chapra, S.C. (1997) Surface Water-Quality Modeling. McGraw-Hill, ch. 33.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+
+def steele(irradiance, saturation):
+    """Steele's photosynthesis–light curve f(I) = (I/Is)·exp(1 − I/Is). [-]
+
+    irradiance and saturation (optimum) irradiance [W/m² PAR] (Steele 1962 [1]).
+    """
+    x = np.asarray(irradiance) / saturation
+    return x * np.exp(1.0 - x)
+
+
+def attenuation_coefficient(background, specific, chlorophyll):
+    """Beer–Lambert attenuation with self-shading, k = k_bg + k_chl·ΣA. [1/m]
+
+    background [1/m], specific [m²/mg chl-a], chlorophyll [µg/L = mg/m³]
+    total over the groups (Chapra 1997 [3], ch. 33).
+    """
+    return background + specific * np.asarray(chlorophyll)
+
+
+def steele_depth_average(surface_irradiance, saturation, attenuation, depth):
+    """Steele's factor averaged over 0..H with I(z) = I0·exp(−k z). [-]
+
+    surface_irradiance I0 and saturation Is [W/m² PAR], attenuation k [1/m],
+    depth H [m]. Closed form (Di Toro et al. 1971 [2]; Chapra 1997 [3]):
+    (e/(kH))·[exp(−(I0/Is)·exp(−kH)) − exp(−I0/Is)]. Broadcasts.
+    """
+    a0 = np.asarray(surface_irradiance) / saturation
+    kh = np.asarray(attenuation) * depth
+    with np.errstate(divide="ignore", invalid="ignore"):
+        f = (np.e / kh) * (np.exp(-a0 * np.exp(-kh)) - np.exp(-a0))
+    # Without attenuation the factor is the surface value at every depth.
+    return np.where(kh > 1e-12, f, steele(surface_irradiance, saturation))
+
+
+def secchi_depth(attenuation, product=None):
+    """Secchi depth from the attenuation coefficient, SD ≈ 1.7 / Kd. [m]
+
+    attenuation [1/m]; product [-] Secchi depth × Kd (default the rule of
+    thumb 1.7 in :mod:`assimilation.parameters`, after Poole & Atkins 1929,
+    J. Mar. Biol. Assoc. UK 16:297).
+    """
+    if product is None:
+        from assimilation.parameters import SECCHI_ATTENUATION_PRODUCT as product
+    return product / np.asarray(attenuation)

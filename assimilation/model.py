@@ -1,0 +1,300 @@
+"""The nutrient–phytoplankton tendency function and its mass bookkeeping.
+
+Per basin b (a well-mixed box, volume V_b, mean depth z_b) and group g,
+with N dissolved inorganic nitrogen, P soluble reactive phosphorus and A_g
+chlorophyll-a [µg/L]:
+
+    growth   mu_g = mu_max_g·theta_g^(T−20)·f_light,g·min(N/(K_N,g+N), P/(K_P,g+P))
+    dA_g/dt  = (mu_g − m_g(T) − v_g/z_b)·A_g                    + transport
+    dN/dt    = −a_N·Σ mu_g A_g + r·a_N·Σ m_g A_g                + transport
+    dP/dt    = −a_P·Σ mu_g A_g + r·a_P·Σ m_g A_g + J_sed(T)/z_b + transport
+
+a_N, a_P nutrient per chlorophyll (carbon:chlorophyll × Redfield), r the
+recycled fraction, m_g temperature-dependent mortality + respiration, v_g
+settling velocity, J_sed internal phosphorus loading. f_light is Steele's
+curve averaged over the mixed depth with self-shading (:mod:`light`),
+transport the flow network (:mod:`hydraulics`). Methods and sources in
+:mod:`kinetics`, :mod:`light` and :mod:`parameters`; the scheme follows the
+nutrient–phytoplankton models of Di Toro et al. (1971) and Chapra (1997,
+Surface Water-Quality Modeling, ch. 33–34).
+
+Everything here is vectorised over (members, basins, groups); arrays of one
+member's basins are ``(M, B, 2 + G)`` "blocks" (see ``StateLayout.blocks``).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from assimilation import hydraulics, kinetics, light
+from assimilation.spec import Drivers, ModelSpec, StateLayout
+
+PARAMETER_KEYS = ("mu_max_20_per_d", "mortality_20_per_d")
+KG_PER_MG = 1e-6
+
+
+@dataclass(frozen=True, eq=False)
+class Coefficients:
+    """Model coefficients as broadcastable arrays (members, basins, groups).
+
+    mu_max_20 and mortality_20 are (M or 1, 1, G) [1/d]; the other group
+    constants (G,); depth_m, volume_m3 (B,).
+    """
+
+    mu_max_20: np.ndarray
+    mortality_20: np.ndarray
+    theta_growth: np.ndarray
+    theta_mortality: np.ndarray
+    k_n: np.ndarray
+    k_p: np.ndarray
+    light_saturation: np.ndarray
+    settling: np.ndarray
+    depth_m: np.ndarray
+    volume_m3: np.ndarray
+    n_to_chl: float
+    p_to_chl: float
+    recycled: float
+    par_fraction: float
+    k_background: float
+    k_chlorophyll: float
+    sediment_release_20: float
+    theta_sediment: float
+
+
+def coefficients(spec: ModelSpec, params: dict | None = None, n_members: int | None = None) -> Coefficients:
+    """Arrays of the spec's constants, with per-member parameters from ``params``.
+
+    params: None or a dict with keys among ``PARAMETER_KEYS``, each (M, G) or
+    broadcastable to it [1/d]; absent keys use the spec's values.
+    """
+    G = spec.n_groups
+    groups = spec.groups
+    base = {
+        "mu_max_20_per_d": np.array([g.mu_max_20_per_d for g in groups])[None, None, :],
+        "mortality_20_per_d": np.array([g.mortality_20_per_d for g in groups])[None, None, :],
+    }
+    if params:
+        unknown = set(params) - set(PARAMETER_KEYS)
+        if unknown:
+            raise ValueError(f"unknown model parameter(s) {sorted(unknown)}; expected keys among {PARAMETER_KEYS}")
+        for key, value in params.items():
+            value = np.asarray(value, dtype=float)
+            if value.ndim == 0 or value.shape[-1] != G or value.ndim > 2:
+                raise ValueError(f"params[{key!r}] must have shape (M, {G}) or ({G},), got {value.shape}")
+            if n_members is not None and value.ndim == 2 and value.shape[0] not in (1, n_members):
+                raise ValueError(f"params[{key!r}] has {value.shape[0]} members, the ensemble has {n_members}")
+            if not np.all(np.isfinite(value)) or np.any(value < 0):
+                raise ValueError(f"params[{key!r}] must be finite and non-negative")
+            base[key] = value.reshape(-1, 1, G)
+    return Coefficients(
+        mu_max_20=base["mu_max_20_per_d"],
+        mortality_20=base["mortality_20_per_d"],
+        theta_growth=np.array([g.theta_growth for g in groups]),
+        theta_mortality=np.array([g.theta_mortality for g in groups]),
+        k_n=np.array([g.k_n_ugL for g in groups]),
+        k_p=np.array([g.k_p_ugL for g in groups]),
+        light_saturation=np.array([g.light_saturation_W_m2 for g in groups]),
+        settling=np.array([g.settling_m_per_d for g in groups]),
+        depth_m=np.array([b.mean_depth_m for b in spec.basins]),
+        volume_m3=np.array([b.volume_m3 for b in spec.basins]),
+        n_to_chl=spec.nitrogen_to_chlorophyll,
+        p_to_chl=spec.phosphorus_to_chlorophyll,
+        recycled=spec.recycled_fraction,
+        par_fraction=spec.par_fraction,
+        k_background=spec.background_attenuation_per_m,
+        k_chlorophyll=spec.chlorophyll_attenuation_m2_mg,
+        sediment_release_20=spec.sediment_phosphorus_release_20_mg_m2_d,
+        theta_sediment=spec.theta_sediment_release,
+    )
+
+
+@dataclass(frozen=True, eq=False)
+class Forcing:
+    """Drivers at K times: water_temperature_C (K, B) [°C], par_W_m2 (K, B)
+    [W/m² PAR at the surface], inflow_m3_s (K, I) [m³/s] and
+    inflow_concentration_ugL (K, I, 2 + G) [µg/L] (N, P, chlorophyll per group)."""
+
+    water_temperature_C: np.ndarray
+    par_W_m2: np.ndarray
+    inflow_m3_s: np.ndarray
+    inflow_concentration_ugL: np.ndarray
+
+    def at(self, k: int) -> "Forcing":
+        """The forcing at the k-th time, keeping a leading axis of length 1."""
+        s = slice(k, k + 1)
+        return Forcing(self.water_temperature_C[s], self.par_W_m2[s], self.inflow_m3_s[s],
+                       self.inflow_concentration_ugL[s])
+
+
+def check_time_range(drivers: Drivers, t_first: float, t_last: float) -> None:
+    """Raise ValueError unless [t_first, t_last] lies within the driver times."""
+    t = drivers.time_d
+    tol = 1e-9 * max(1.0, abs(t[-1]))
+    if t_first < t[0] - tol or t_last > t[-1] + tol:
+        raise ValueError(f"drivers cover epoch days {t[0]:.6f}..{t[-1]:.6f}, "
+                         f"the model needs {t_first:.6f}..{t_last:.6f}")
+
+
+def _interpolate(time_d: np.ndarray, values: np.ndarray, times: np.ndarray) -> np.ndarray:
+    if time_d.size == 1:
+        return np.broadcast_to(values[:1], (times.size,) + values.shape[1:]).copy()
+    k = np.clip(np.searchsorted(time_d, times, side="right") - 1, 0, time_d.size - 2)
+    w = np.clip((times - time_d[k]) / (time_d[k + 1] - time_d[k]), 0.0, 1.0)
+    w = w.reshape((-1,) + (1,) * (values.ndim - 1))
+    return (1.0 - w) * values[k] + w * values[k + 1]
+
+
+def forcing_at(drivers: Drivers, spec: ModelSpec, times_d) -> Forcing:
+    """Drivers interpolated linearly to ``times_d`` (K,) [epoch days]."""
+    drivers.check_against(spec)
+    times = np.atleast_1d(np.asarray(times_d, dtype=float))
+    check_time_range(drivers, times.min(), times.max())
+    t = drivers.time_d
+    B, I, G = spec.n_basins, spec.n_inflows, spec.n_groups
+    temperature = _interpolate(t, drivers.water_temperature_C, times)
+    shortwave = _interpolate(t, drivers.shortwave_W_m2, times)
+    if shortwave.ndim == 1:
+        shortwave = np.repeat(shortwave[:, None], B, axis=1)
+    inflow = _interpolate(t, drivers.inflow_m3_s, times)
+    conc = np.zeros((times.size, I, 2 + G))
+    conc[..., 0] = _interpolate(t, drivers.inflow_nitrogen_ugL, times)
+    conc[..., 1] = _interpolate(t, drivers.inflow_phosphorus_ugL, times)
+    if drivers.inflow_chlorophyll_ugL is not None:
+        conc[..., 2:] = _interpolate(t, drivers.inflow_chlorophyll_ugL, times)
+    return Forcing(temperature, spec.par_fraction * shortwave, inflow, conc)
+
+
+def process_rates(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray):
+    """Specific rates of each group [1/d], each (M, B, G).
+
+    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) [°C]; par (B,) [W/m²].
+    Returns (growth, mortality, settling).
+    """
+    N = C[..., 0:1]
+    P = C[..., 1:2]
+    A = C[..., 2:]
+    T = temperature[..., :, None]
+    k = light.attenuation_coefficient(co.k_background, co.k_chlorophyll, A.sum(axis=-1, keepdims=True))
+    f_light = light.steele_depth_average(par[..., :, None], co.light_saturation, k, co.depth_m[:, None])
+    mu = kinetics.growth_rate(co.mu_max_20, co.theta_growth, T, f_light, N, P, co.k_n, co.k_p)
+    m = kinetics.mortality_rate(co.mortality_20, co.theta_mortality, T)
+    s = kinetics.settling_rate(co.settling, co.depth_m[:, None])
+    return mu, m, s
+
+
+def reaction_tendency(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray) -> np.ndarray:
+    """Local (within-basin) tendency dC/dt [µg/L/d], blocks (M, B, 2 + G).
+
+    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) [°C]; par (B,) [W/m²].
+    """
+    A = C[..., 2:]
+    mu, m, s = process_rates(C, co, temperature, par)
+    uptake = (mu * A).sum(axis=-1)
+    dying = (m * A).sum(axis=-1)
+    out = np.empty(np.broadcast_shapes(C.shape, mu.shape[:-1] + (C.shape[-1],)))
+    out[..., 2:] = (mu - m - s) * A
+    out[..., 0] = co.n_to_chl * (co.recycled * dying - uptake)
+    out[..., 1] = co.p_to_chl * (co.recycled * dying - uptake)
+    if co.sediment_release_20 > 0:
+        out[..., 1] += kinetics.sediment_phosphorus_release(
+            co.sediment_release_20, co.theta_sediment, temperature, co.depth_m)
+    return out
+
+
+def transport_tendency(C: np.ndarray, spec: ModelSpec, inflow_m3_s: np.ndarray,
+                       inflow_concentration: np.ndarray) -> np.ndarray:
+    """Flushing and transport dC/dt = L·C + s [µg/L/d], blocks (M, B, 2 + G).
+
+    inflow_m3_s (I,) [m³/s], inflow_concentration (I, 2 + G) [µg/L].
+    """
+    L = hydraulics.transport_matrix(spec, inflow_m3_s)
+    s = hydraulics.inflow_source(spec, inflow_m3_s, inflow_concentration)
+    return L @ C + s
+
+
+def tendency(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict | None = None) -> np.ndarray:
+    """Full model tendency dE/dt [µg/L/d] of an ensemble (M, n_state).
+
+    forcing: a :class:`Forcing` at one time (leading axis of length 1);
+    params as in :func:`coefficients`.
+    """
+    layout = StateLayout(spec)
+    E = np.asarray(E, dtype=float)
+    C = layout.blocks(E)
+    co = coefficients(spec, params, E.shape[0])
+    out = reaction_tendency(C, co, forcing.water_temperature_C[0], forcing.par_W_m2[0])
+    out = out + transport_tendency(C, spec, forcing.inflow_m3_s[0], forcing.inflow_concentration_ugL[0])
+    return out.reshape(out.shape[:-2] + (layout.n_state,))
+
+
+def rhs(t: float, y: np.ndarray, spec: ModelSpec, drivers: Drivers, params: dict | None = None) -> np.ndarray:
+    """Right-hand side for :func:`scipy.integrate.solve_ivp` [µg/L/d].
+
+    y: flat state of one or more members (M·n_state,); t [epoch days].
+    """
+    n_state = StateLayout(spec).n_state
+    E = np.asarray(y, dtype=float).reshape(-1, n_state)
+    return tendency(E, spec, forcing_at(drivers, spec, [t]), params).ravel()
+
+
+def total_nitrogen(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
+    """Total nitrogen (DIN + algal N) per basin [µg N/L], (..., B)."""
+    layout = StateLayout(spec)
+    return layout.nitrogen(E) + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(E)
+
+
+def total_phosphorus(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
+    """Total phosphorus (SRP + algal P) per basin [µg P/L], (..., B)."""
+    layout = StateLayout(spec)
+    return layout.phosphorus(E) + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(E)
+
+
+def total_mass(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
+    """Total nitrogen and phosphorus in the whole network [kg], (..., 2)."""
+    volume = np.array([b.volume_m3 for b in spec.basins])
+    n = (total_nitrogen(E, spec) * volume).sum(axis=-1)
+    p = (total_phosphorus(E, spec) * volume).sum(axis=-1)
+    return np.stack([n, p], axis=-1) * KG_PER_MG
+
+
+def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict | None = None) -> dict:
+    """Mass fluxes of the network budget [kg/d], each (M, 2) for (N, P).
+
+    Keys: ``inflow`` (external loads), ``outflow`` (leaving the system),
+    ``settling``, ``mortality_loss`` (the non-recycled part), ``sediment_release``
+    and ``net`` = inflow − outflow − settling − mortality_loss + sediment_release,
+    which equals d(total_mass)/dt. forcing at one time.
+    """
+    layout = StateLayout(spec)
+    E = np.asarray(E, dtype=float)
+    C = layout.blocks(E)
+    co = coefficients(spec, params, E.shape[0])
+    T, par = forcing.water_temperature_C[0], forcing.par_W_m2[0]
+    q, c_in = forcing.inflow_m3_s[0], forcing.inflow_concentration_ugL[0]
+    stoich = np.array([co.n_to_chl, co.p_to_chl])
+    A = C[..., 2:]
+    _, m, s = process_rates(C, co, T, par)
+
+    def totals(conc_nutrient, chlorophyll_sum):
+        return conc_nutrient + stoich * chlorophyll_sum[..., None]
+
+    spd = hydraulics.SECONDS_PER_DAY
+    inflow_tot = totals(c_in[:, :2], c_in[:, 2:].sum(axis=-1))               # (I, 2) µg/L
+    inflow = np.broadcast_to((q[:, None] * inflow_tot).sum(axis=0) * spd, (E.shape[0], 2))
+    Q = hydraulics.basin_outflows(spec.network, q) * spd                     # (B,) m³/d
+    leaves = np.array([d == -1 for d in spec.network.downstream], dtype=float)
+    basin_tot = totals(C[..., :2], A.sum(axis=-1))                            # (M, B, 2)
+    outflow = ((Q * leaves)[:, None] * basin_tot).sum(axis=-2)
+    V = co.volume_m3[:, None]
+    settling = stoich * ((s * A).sum(axis=-1)[..., None] * V).sum(axis=-2)
+    mortality_loss = stoich * (1.0 - co.recycled) * ((m * A).sum(axis=-1)[..., None] * V).sum(axis=-2)
+    release = np.zeros((E.shape[0], 2))
+    if co.sediment_release_20 > 0:
+        j = kinetics.sediment_phosphorus_release(co.sediment_release_20, co.theta_sediment, T, co.depth_m)
+        release[:, 1] = (j * co.volume_m3).sum()
+    out = {"inflow": inflow, "outflow": outflow, "settling": settling,
+           "mortality_loss": mortality_loss, "sediment_release": release}
+    out = {k: np.asarray(v) * KG_PER_MG for k, v in out.items()}
+    out["net"] = out["inflow"] - out["outflow"] - out["settling"] - out["mortality_loss"] + out["sediment_release"]
+    return out

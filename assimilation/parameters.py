@@ -1,0 +1,132 @@
+"""Default parameters of the nutrient–phytoplankton model, with their sources.
+
+This module is the one place where Bloomline's default rate constants live;
+``assimilation.spec`` takes its dataclass defaults from here and nothing else
+repeats the numbers.
+
+Values are typical mid-range figures for a eutrophic temperate lake, chosen so
+that a new water body runs before any tuning. Sources:
+
+[1] Bowie, G.L. et al. (1985) Rates, Constants, and Kinetics Formulations in
+    Surface Water Quality Modeling, 2nd ed. US EPA, EPA/600/3-85/040.
+[2] Chapra, S.C. (1997) Surface Water-Quality Modeling. McGraw-Hill, ch. 33–34.
+[3] Eppley, R.W. (1972) Temperature and phytoplankton growth in the sea.
+    Fishery Bulletin 70:1063–1085.
+[4] Steele, J.H. (1962) Environmental control of photosynthesis in the sea.
+    Limnology and Oceanography 7:137–150.
+[5] Redfield, A.C. (1958) The biological control of chemical factors in the
+    environment. American Scientist 46:205–221.
+
+Values marked "from memory" are mid-range figures from the compilations [1]
+and [2] as recalled, not re-read from the tables; they are starting values
+for the filter's parameter estimation, not calibrated constants.
+
+Choice of the cyanobacteria advantage (documented here once)
+-------------------------------------------------------------
+Warm, calm, nitrogen-poor water favours cyanobacteria in Bloomline through:
+
+* a steeper temperature response (theta 1.10 against Eppley's 1.066 for the
+  other group), with a lower rate at 20 °C, so the cyanobacteria outgrow the
+  green algae above roughly 23–25 °C;
+* buoyancy: no settling loss (the green algae settle at 0.3 m/d, which costs
+  them 0.1 /d in a 3 m deep arm, more in calm shallow water);
+* a low nitrogen half-saturation (5 against 20 µg N/L), a mass-conserving
+  stand-in for nitrogen fixation: nitrogen fixation itself is not modelled,
+  so total nitrogen stays a conserved quantity that the mass-balance checks
+  can verify;
+* a lower light saturation (shade tolerance under self-shading).
+"""
+from __future__ import annotations
+
+# --- stoichiometry -----------------------------------------------------------
+#: Carbon to chlorophyll-a ratio [mg C / mg chl-a]; range 20–100 in [1], [2].
+CARBON_TO_CHLOROPHYLL = 50.0
+#: Redfield ratio by mass, C:N:P = 41:7.2:1 [5] (106:16:1 molar).
+REDFIELD_NITROGEN_TO_CARBON = 7.2 / 41.0
+REDFIELD_PHOSPHORUS_TO_CARBON = 1.0 / 41.0
+#: Nitrogen held per unit chlorophyll-a [µg N / µg chl-a].
+NITROGEN_TO_CHLOROPHYLL = CARBON_TO_CHLOROPHYLL * REDFIELD_NITROGEN_TO_CARBON
+#: Phosphorus held per unit chlorophyll-a [µg P / µg chl-a].
+PHOSPHORUS_TO_CHLOROPHYLL = CARBON_TO_CHLOROPHYLL * REDFIELD_PHOSPHORUS_TO_CARBON
+
+# --- light -------------------------------------------------------------------
+#: Photosynthetically active fraction of shortwave radiation [-]; 0.43–0.50
+#: (common practice).
+PAR_FRACTION = 0.45
+#: Background light attenuation of water, dissolved and suspended matter
+#: [1/m]; Kd ≈ 1.7 / Secchi depth, so 0.8 /m is clear-water Secchi ≈ 2 m
+#: (rule of thumb in [2]).
+BACKGROUND_ATTENUATION_PER_M = 0.8
+#: Chlorophyll-specific attenuation [m² / mg chl-a]; 0.014–0.016 (from memory,
+#: consistent with the linear term of Riley's formula).
+CHLOROPHYLL_ATTENUATION_M2_MG = 0.016
+#: Secchi depth × attenuation coefficient [-] (rule of thumb Kd ≈ 1.7 / SD).
+SECCHI_ATTENUATION_PRODUCT = 1.7
+
+# --- recycling and sediment -------------------------------------------------
+#: Fraction of mortality/respiration returned at once to dissolved N and P
+#: [-]; the rest leaves the water column (refractory detritus, burial).
+#: Mid-range of [2] (from memory).
+RECYCLED_FRACTION = 0.5
+#: Internal phosphorus release from the sediment at 20 °C [mg P / m² / d].
+#: Off by default: it is site-specific (0.1–10 mg/m²/d from oxic to anoxic
+#: sediments, from memory) and set per water body.
+SEDIMENT_PHOSPHORUS_RELEASE_20_MG_M2_D = 0.0
+#: Temperature coefficient of sediment phosphorus release [-] (from memory).
+THETA_SEDIMENT_RELEASE = 1.08
+
+# --- phytoplankton groups (rates at 20 °C) ----------------------------------
+#: Eppley (1972) [3]: log10 mu = 0.0275 T − 0.070, i.e. theta = 10**0.0275.
+THETA_EPPLEY = 10.0 ** 0.0275
+
+GREEN_ALGAE = dict(
+    name="green_algae",
+    mu_max_20_per_d=1.6,          # 1–3 /d in [1] (from memory)
+    theta_growth=THETA_EPPLEY,    # Eppley (1972) [3]: 1.066
+    k_n_ugL=20.0,                 # K_N 5–25 µg N/L in [1] (from memory)
+    k_p_ugL=3.0,                  # K_P 1–5 µg P/L in [1] (from memory)
+    light_saturation_W_m2=80.0,   # PAR, Steele optimum [4]; from memory
+    mortality_20_per_d=0.1,       # respiration + mortality ≈ 0.1 /d [1] (from memory)
+    theta_mortality=1.08,         # [1] (from memory)
+    settling_m_per_d=0.3,         # 0.05–0.5 m/d in [1] (from memory)
+    is_cyanobacteria=False,
+)
+
+CYANOBACTERIA = dict(
+    name="cyanobacteria",
+    mu_max_20_per_d=1.3,          # slower than greens at 20 °C [1] (from memory)
+    theta_growth=1.10,            # steeper temperature response (from memory)
+    k_n_ugL=5.0,                  # low K_N: stand-in for N fixation (see module doc)
+    k_p_ugL=3.0,                  # [1] (from memory)
+    light_saturation_W_m2=50.0,   # shade tolerant (from memory)
+    mortality_20_per_d=0.08,      # [1] (from memory)
+    theta_mortality=1.08,         # [1] (from memory)
+    settling_m_per_d=0.0,         # buoyant: no net settling (common practice)
+    is_cyanobacteria=True,
+)
+
+
+def default_groups():
+    """The default phytoplankton groups: green algae and cyanobacteria.
+
+    Returns a tuple of :class:`assimilation.spec.Group` with rates at 20 °C
+    (see the module docstring for the sources and the choice of the
+    cyanobacteria advantage).
+    """
+    from assimilation.spec import Group
+
+    return (Group(**GREEN_ALGAE), Group(**CYANOBACTERIA))
+
+
+def default_spec(basins, network, groups=None):
+    """A :class:`assimilation.spec.ModelSpec` with Bloomline's default constants.
+
+    basins: sequence of :class:`Basin`; network: :class:`Network`;
+    groups: sequence of :class:`Group` (default :func:`default_groups`).
+    """
+    from assimilation.spec import ModelSpec
+
+    if groups is None:
+        groups = default_groups()
+    return ModelSpec(basins=tuple(basins), groups=tuple(groups), network=network)
+
