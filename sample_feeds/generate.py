@@ -23,8 +23,6 @@ numpy and pandas only (matplotlib only for the optional ``--plot``).
 from __future__ import annotations
 
 import argparse
-import csv
-import io
 from dataclasses import dataclass
 from pathlib import Path
 
