@@ -61,13 +61,15 @@ class FilterConfig:
     members: ensemble size. method: ``"sqrt"`` (local ETKF) or
     ``"stochastic"`` (perturbed observations). inflation [-]: multiplicative
     factor on the spread of the model state before each analysis.
-    relaxation_to_prior_spread [-]: RTPS alpha in [0, 1].
+    relaxation_to_prior_spread [-]: RTPS alpha in [0, 1] for the model state.
     localization_hops [hops]: Gaspari–Cohn half-width along the flow
     network (zero at twice this); inf or 0 switches localization off.
     estimate_parameters: augment with mu_max and mortality of each group.
     n_sensors: number of chlorophyll/phycocyanin sensors with an estimated gain.
     parameter_sd_floor [log units, i.e. relative sd]: least spread kept in
-    each augmented parameter and gain. window_d [d]: aggregation window of
+    each augmented parameter and gain. parameter_relaxation [-]: RTPS alpha
+    for the parameters and gains, which slows their learning but keeps them
+    from collapsing onto a wrong value early. window_d [d]: aggregation window of
     high-frequency readings. representativeness_fraction [-]: see
     :func:`observe.aggregate_windows`. dt_d [d]: model step.
     initial_state_log_sd, parameter_log_sd, gain_log_sd [log units]: spread
@@ -86,6 +88,7 @@ class FilterConfig:
     estimate_parameters: bool = True
     n_sensors: int = 0
     parameter_sd_floor: float = 0.03
+    parameter_relaxation: float = 0.5
     window_d: float = 1.0
     representativeness_fraction: float = observe.REPRESENTATIVENESS_FRACTION
     dt_d: float = 1.0 / 24.0
@@ -109,6 +112,8 @@ class FilterConfig:
             raise ValueError(f"FilterConfig.localization_hops must be >= 0, got {self.localization_hops!r}")
         if int(self.n_sensors) != self.n_sensors or self.n_sensors < 0:
             raise ValueError(f"FilterConfig.n_sensors must be an integer >= 0, got {self.n_sensors!r}")
+        if not 0.0 <= self.parameter_relaxation <= 1.0:
+            raise ValueError(f"FilterConfig.parameter_relaxation must be in [0, 1], got {self.parameter_relaxation!r}")
         for key in ("parameter_sd_floor", "initial_state_log_sd", "parameter_log_sd", "gain_log_sd",
                     "model_error_log_sd_per_d", "representativeness_fraction"):
             if not getattr(self, key) >= 0:
@@ -261,8 +266,9 @@ def assimilate(checkpoint: Checkpoint, observations: Observations, spec: ModelSp
     """Advance the ensemble from ``checkpoint.time_d`` to ``t_end_d`` [epoch days],
     analysing the readings with checkpoint.time_d < time_d <= t_end_d.
 
-    Readings are aggregated into windows of ``cfg.window_d``; each window is
-    analysed at its end (or at t_end_d, whichever is first), in time order.
+    Readings are aggregated into windows of ``cfg.window_d``; the windows are
+    analysed in time order, each at the mean time of its aggregated readings
+    (all kinds and basins of one window together).
     Diagnostics: ``n_readings``, ``n_obs`` (windows analysed),
     ``analysis_times_d``, innovation statistics over all analysed windows
     (``innovation_mean``, ``innovation_sd``, normalised forms,
@@ -296,7 +302,12 @@ def assimilate(checkpoint: Checkpoint, observations: Observations, spec: ModelSp
     raw = observations.select(in_cycle)
     windows = observe.aggregate_windows(raw, cfg.window_d,
                                         representativeness_fraction=cfg.representativeness_fraction)
-    when = np.minimum(windows.time_d, t_end)
+    window_index = np.floor(windows.time_d / cfg.window_d)
+    when = np.zeros(len(windows))
+    for k in np.unique(window_index):  # loop over windows in the cycle, not members
+        in_window = window_index == k
+        when[in_window] = windows.time_d[in_window].mean()
+    when = np.clip(when, np.nextafter(t0, np.inf), t_end)
     cyano = [g.is_cyanobacteria for g in spec.groups]
     G = spec.n_groups
     floor = cfg.state_floor_ugL
@@ -337,9 +348,12 @@ def assimilate(checkpoint: Checkpoint, observations: Observations, spec: ModelSp
         try:
             with np.errstate(all="raise"):
                 Za = enkf.analysis(Z, HE, batch.value, R, method=cfg.method, rng=rng, rho=rho, rho_obs=rho_obs)
-                Za = inflation.relax_to_prior_spread(Z, Za, cfg.relaxation_to_prior_spread)
+                Za[:, s_state] = inflation.relax_to_prior_spread(Z[:, s_state], Za[:, s_state],
+                                                                  cfg.relaxation_to_prior_spread)
                 if n_param + n_gain:
                     cols = np.r_[s_param.start:s_gain.stop]
+                    Za[:, cols] = inflation.relax_to_prior_spread(Z[:, cols], Za[:, cols],
+                                                                  cfg.parameter_relaxation)
                     Za = inflation.floor_spread(Za, cfg.parameter_sd_floor, columns=cols)
                 Ea = transform.from_log(Za)
             ok = bool(np.all(np.isfinite(Ea)))

@@ -91,8 +91,9 @@ def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
                       representativeness_fraction: float = REPRESENTATIVENESS_FRACTION) -> Observations:
     """Aggregate readings into one value per (kind, basin, sensor, window).
 
-    Windows are [k·window_d, (k+1)·window_d) in epoch days [d]; the result is
-    stamped at the window's end. Value: the mean of the n readings. Error
+    Windows are [k·window_d, (k+1)·window_d) in epoch days [d]; each result is
+    stamped at the mean time of its readings, where the window mean best
+    stands for the state under a linear trend. Value: the mean of the n readings. Error
     variance: instrument part mean(sd_i²)/n (independent errors average
     down) plus a representativeness part, the larger of
     (representativeness_fraction · |mean|)² and the variability within the
@@ -118,6 +119,7 @@ def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
     mean = np.bincount(group, weights=obs.value, minlength=g) / n
     dev2 = (obs.value - mean[group]) ** 2
     sample_var = np.where(n > 1, np.bincount(group, weights=dev2, minlength=g) / np.maximum(n - 1, 1), 0.0)
+    mean_time = np.bincount(group, weights=obs.time_d, minlength=g) / n
     instr_var = np.bincount(group, weights=obs.error_sd**2, minlength=g) / n
     repr_var = np.maximum((representativeness_fraction * np.abs(mean)) ** 2,
                           np.maximum(sample_var - instr_var, 0.0))
@@ -125,7 +127,7 @@ def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
     kinds = np.array(sorted(OBSERVABLE_KINDS))[uniq[:, 1]]
     order = np.lexsort((uniq[:, 3], uniq[:, 2], kinds, uniq[:, 0]))
     return Observations(
-        time_d=((uniq[:, 0] + 1) * window_d)[order].astype(float),
+        time_d=np.clip(mean_time, uniq[:, 0] * window_d, (uniq[:, 0] + 1) * window_d)[order],
         kind=kinds[order],
         basin=uniq[order, 2],
         sensor=uniq[order, 3],
