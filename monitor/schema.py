@@ -116,7 +116,7 @@ readings = Table(
     Column("station_id", String(64), nullable=False),
     Column("variable", String(64), nullable=False),
     Column("time_utc", UTCDateTime, nullable=False),
-    Column("value", Float, nullable=False),
+    Column("value", Float, nullable=True),  # NULL = missing (reported empty), QC flag 9
     Column("qc_flag", SmallInteger, nullable=False),  # QARTOD: 1 pass, 2 not evaluated, 3 suspect, 4 fail, 9 missing
     Column("qc_tests", String(64), nullable=False, default=""),  # one digit per QC test, see monitor.qc
     Column("source", String(100), nullable=False),

@@ -2,7 +2,7 @@
 
 Revision ID: 0001
 Revises: 
-Create Date: 2026-12-01 23:49:55.983759
+Create Date: 2026-12-01 23:56:32.825038
 """
 from alembic import op
 import sqlalchemy as sa
@@ -159,7 +159,7 @@ def upgrade() -> None:
     sa.Column('station_id', sa.String(length=64), nullable=False),
     sa.Column('variable', sa.String(length=64), nullable=False),
     sa.Column('time_utc', monitor.schema.UTCDateTime(), nullable=False),
-    sa.Column('value', sa.Float(), nullable=False),
+    sa.Column('value', sa.Float(), nullable=True),
     sa.Column('qc_flag', sa.SmallInteger(), nullable=False),
     sa.Column('qc_tests', sa.String(length=64), nullable=False),
     sa.Column('source', sa.String(length=100), nullable=False),

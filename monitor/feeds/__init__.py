@@ -1,0 +1,35 @@
+"""Feed readers: where payloads come from. Each hands bytes to :func:`monitor.ingest.ingest_bytes`.
+
+* :mod:`monitor.feeds.csv_folder` — a drop folder: each new file once, then archived;
+* :mod:`monitor.feeds.http_pull` — CSV or JSON from a URL on a schedule, with
+  conditional requests (ETag / Last-Modified), timeouts and back-off;
+* :mod:`monitor.feeds.mqtt` — an MQTT subscription (paho-mqtt), one batch per message;
+* the HTTP push endpoint lives in :mod:`web.push`.
+
+:func:`poll_due` runs every pull-type feed that is due; the scheduler calls it.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from monitor.feeds.csv_folder import poll_folder
+from monitor.feeds.http_pull import PullState, pull_feed
+
+
+def poll_due(engine, config, *, states: dict[str, PullState], now: dt.datetime | None = None,
+             session=None, progress=None) -> list:
+    """One round over the csv-folder and http-pull feeds; ``states`` keeps each pull feed's state between rounds."""
+    results = []
+    for feed in config.feeds:
+        if feed.kind == "csv-folder":
+            results.extend(poll_folder(engine, config, feed, progress=progress, now=now))
+        elif feed.kind == "http-pull":
+            state = states.setdefault(feed.name, PullState())
+            result = pull_feed(engine, config, feed, state, now=now, session=session)
+            if result is not None:
+                results.append(result)
+    return results
+
+
+__all__ = ["PullState", "poll_due", "poll_folder", "pull_feed"]
