@@ -116,7 +116,7 @@ def seeded(engine):
     day = dt.timedelta(days=1)
     quarter = dt.timedelta(minutes=15)
     west = [(ANALYSIS - 2 * day + i * quarter, 6.0 + 0.01 * i, 1) for i in range(8 * 24)]
-    west.append((ANALYSIS - day + 3 * quarter + dt.timedelta(seconds=1), 500.0, 4))  # a failed spike, not shown
+    west.append((ANALYSIS - dt.timedelta(hours=1, seconds=-1), 500.0, 4))  # a failed spike, never shown
     write_readings(engine, "QW-1", west)
     write_readings(engine, "QE-1", [(ANALYSIS - day + i * quarter, 0.8, 1) for i in range(4 * 24)])
     return run_id
@@ -132,3 +132,9 @@ def app(config, engine, seeded):
 @pytest.fixture
 def client(app):
     return app.test_client()
+
+
+@pytest.fixture
+def analysis_utc():
+    """Analysis time of the latest seeded run."""
+    return ANALYSIS

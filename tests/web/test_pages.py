@@ -51,3 +51,47 @@ def test_unknown_water_body_basin_and_chart_format_are_404(client):
     assert client.get("/water-bodies/nowhere").status_code == 404
     assert client.get("/water-bodies/quillmere/basins/nowhere/forecast.png").status_code == 404
     assert client.get("/water-bodies/quillmere/basins/west/forecast.gif").status_code == 404
+
+
+def _links(text: str) -> list[str]:
+    return re.findall(r"http://bloomline\.test(/\S+)", text)
+
+
+def test_subscribe_confirm_and_unsubscribe_through_the_pages_and_the_mailbox(app, client, config, engine, tmp_path):
+    import email
+    import email.policy
+
+    from monitor import notify, subscriptions
+
+    r = client.post("/subscribe", data={"name": "Fen Quill", "email": "fen@quillmere.example",
+                                        "water_body": "quillmere", "min_level": "1"})
+    assert r.status_code == 201 and "Check your email" in r.get_data(as_text=True)
+    assert subscriptions.subscribers_for(engine, "quillmere", 2) == []  # not before confirming
+
+    clock = app.extensions["bloomline"]["clock"]
+    assert notify.send_due(engine, notify.transport_from_config(config), clock()).sent == 1
+    (eml,) = (tmp_path / "mailbox").glob("*.eml")
+    msg = email.message_from_bytes(eml.read_bytes(), policy=email.policy.default)
+    assert msg["To"] == "fen@quillmere.example" and "confirm" in msg["Subject"]
+    (confirm_link,) = _links(msg.get_content())
+
+    assert "Confirm" in client.get(confirm_link).get_data(as_text=True)
+    assert subscriptions.subscribers_for(engine, "quillmere", 1) == []  # a GET (link scanner) changes nothing
+    assert "Confirmed" in client.post(confirm_link).get_data(as_text=True)
+    (sub,) = subscriptions.subscribers_for(engine, "quillmere", 1)
+    assert sub.email == "fen@quillmere.example"
+
+    assert "Unsubscribed" in client.post(f"/unsubscribe/{sub.token}").get_data(as_text=True)
+    assert subscriptions.subscribers_for(engine, "quillmere", 2) == []
+
+
+def test_subscribe_form_reports_a_bad_address_with_400(client):
+    r = client.post("/subscribe", data={"email": "not an address", "water_body": "quillmere", "min_level": "1"})
+    assert r.status_code == 400 and "is not an email address" in r.get_data(as_text=True)
+    r = client.post("/subscribe", data={"email": "a@b.example", "water_body": "", "min_level": "1"})
+    assert r.status_code == 400 and "Choose a water body" in r.get_data(as_text=True)
+
+
+def test_unknown_token_link_is_404(client):
+    assert client.get("/unsubscribe/not-a-token").status_code == 404
+    assert client.post("/subscribe/confirm/not-a-token").status_code == 404
