@@ -42,7 +42,10 @@ def steele_depth_average(surface_irradiance, saturation, attenuation, depth):
     with np.errstate(divide="ignore", invalid="ignore"):
         f = (np.e / kh) * (np.exp(-a0 * np.exp(-kh)) - np.exp(-a0))
     # Without attenuation the factor is the surface value at every depth.
-    return np.where(kh > 1e-12, f, steele(surface_irradiance, saturation))
+    clear = kh <= 1e-12
+    if np.any(clear):
+        f = np.where(clear, steele(surface_irradiance, saturation), f)
+    return f
 
 
 def secchi_depth(attenuation, product=None):

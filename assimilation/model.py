@@ -165,41 +165,86 @@ def forcing_at(drivers: Drivers, spec: ModelSpec, times_d) -> Forcing:
     return Forcing(temperature, spec.par_fraction * shortwave, inflow, conc)
 
 
-def process_rates(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray):
+def light_factor(C: np.ndarray, co: Coefficients, par: np.ndarray, par_weights=None) -> np.ndarray:
+    """Steele's factor averaged over the mixed depth, with self-shading. [-]
+
+    C blocks (M, B, 2 + G) [µg/L]; par (B,) [W/m² PAR at the surface], or
+    (Q, B) irradiances at Q times with quadrature weights par_weights (Q,)
+    summing to one, giving the time mean of the factor. Returns (M, B, G).
+    """
+    A = C[..., 2:]
+    k = light.attenuation_coefficient(co.k_background, co.k_chlorophyll, A.sum(axis=-1, keepdims=True))
+    depth = co.depth_m[:, None]
+    if par_weights is None:
+        return light.steele_depth_average(par[..., :, None], co.light_saturation, k, depth)
+    f = 0.0
+    for w, par_q in zip(par_weights, par):
+        f = f + w * light.steele_depth_average(par_q[:, None], co.light_saturation, k, depth)
+    return f
+
+
+def process_rates(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray, par_weights=None):
     """Specific rates of each group [1/d], each (M, B, G).
 
-    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) [°C]; par (B,) [W/m²].
-    Returns (growth, mortality, settling).
+    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) [°C]; par and
+    par_weights as in :func:`light_factor`. Returns (growth, mortality, settling).
     """
     N = C[..., 0:1]
     P = C[..., 1:2]
-    A = C[..., 2:]
     T = temperature[..., :, None]
-    k = light.attenuation_coefficient(co.k_background, co.k_chlorophyll, A.sum(axis=-1, keepdims=True))
-    f_light = light.steele_depth_average(par[..., :, None], co.light_saturation, k, co.depth_m[:, None])
+    f_light = light_factor(C, co, par, par_weights)
     mu = kinetics.growth_rate(co.mu_max_20, co.theta_growth, T, f_light, N, P, co.k_n, co.k_p)
     m = kinetics.mortality_rate(co.mortality_20, co.theta_mortality, T)
     s = kinetics.settling_rate(co.settling, co.depth_m[:, None])
     return mu, m, s
 
 
-def reaction_tendency(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray) -> np.ndarray:
+@dataclass(frozen=True, eq=False)
+class ProcessFluxes:
+    """Volumetric process fluxes in one basin [µg/L/d].
+
+    growth, mortality, settling (M, B, G) in chlorophyll-a units (growth of
+    A, mortality + respiration of A, settling of A); sediment_phosphorus
+    (B,) [µg P/L/d] or 0.0. Nutrient fluxes follow by stoichiometry.
+    """
+
+    growth: np.ndarray
+    mortality: np.ndarray
+    settling: np.ndarray
+    sediment_phosphorus: np.ndarray | float
+
+
+def process_fluxes(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray,
+                   par_weights=None) -> ProcessFluxes:
+    """The fluxes of every local process; arguments as in :func:`reaction_tendency`."""
+    A = C[..., 2:]
+    mu, m, s = process_rates(C, co, temperature, par, par_weights)
+    release = 0.0
+    if co.sediment_release_20 > 0:
+        release = kinetics.sediment_phosphorus_release(
+            co.sediment_release_20, co.theta_sediment, temperature, co.depth_m)
+    return ProcessFluxes(mu * A, m * A, s * A, release)
+
+
+def tendency_from_fluxes(f: ProcessFluxes, co: Coefficients) -> np.ndarray:
+    """Assemble dC/dt [µg/L/d], blocks (M, B, 2 + G), from process fluxes."""
+    uptake = f.growth.sum(axis=-1)
+    recycled = co.recycled * f.mortality.sum(axis=-1)
+    out = np.empty(f.growth.shape[:-1] + (2 + f.growth.shape[-1],))
+    out[..., 2:] = f.growth - f.mortality - f.settling
+    out[..., 0] = co.n_to_chl * (recycled - uptake)
+    out[..., 1] = co.p_to_chl * (recycled - uptake) + f.sediment_phosphorus
+    return out
+
+
+def reaction_tendency(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray,
+                      par_weights=None) -> np.ndarray:
     """Local (within-basin) tendency dC/dt [µg/L/d], blocks (M, B, 2 + G).
 
-    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) [°C]; par (B,) [W/m²].
+    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) [°C]; par (B,) [W/m²]
+    (or (Q, B) with par_weights, see :func:`light_factor`).
     """
-    A = C[..., 2:]
-    mu, m, s = process_rates(C, co, temperature, par)
-    uptake = (mu * A).sum(axis=-1)
-    dying = (m * A).sum(axis=-1)
-    out = np.empty(np.broadcast_shapes(C.shape, mu.shape[:-1] + (C.shape[-1],)))
-    out[..., 2:] = (mu - m - s) * A
-    out[..., 0] = co.n_to_chl * (co.recycled * dying - uptake)
-    out[..., 1] = co.p_to_chl * (co.recycled * dying - uptake)
-    if co.sediment_release_20 > 0:
-        out[..., 1] += kinetics.sediment_phosphorus_release(
-            co.sediment_release_20, co.theta_sediment, temperature, co.depth_m)
-    return out
+    return tendency_from_fluxes(process_fluxes(C, co, temperature, par, par_weights), co)
 
 
 def transport_tendency(C: np.ndarray, spec: ModelSpec, inflow_m3_s: np.ndarray,
