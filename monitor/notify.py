@@ -41,6 +41,8 @@ from monitor.subscriptions import Subscriber, subscribers_for
 BASE_DELAY_S = 60.0
 MAX_DELAY_S = 6 * 3600.0
 MAX_ATTEMPTS = 12
+#: How long a sender holds a message it is handing over before another sender may try it.
+LEASE = dt.timedelta(minutes=5)
 
 
 # --------------------------------------------------------------------------
@@ -291,8 +293,9 @@ def send_due(engine: Engine, transport: Transport, now: dt.datetime, *, limit: i
              max_delay_s: float = MAX_DELAY_S) -> SendSummary:
     """Send every pending message due at ``now`` (oldest first, at most ``limit``).
 
-    Each result is committed on its own, so a crash loses no bookkeeping of
-    messages already handed over. A failure increments ``attempts``, stores
+    Each row is first claimed with a :data:`LEASE` (so two senders never
+    hand over the same row at once; after a crash it is retried when the
+    lease ends) and each result is committed on its own. A failure increments ``attempts``, stores
     the error and schedules the next try ``retry_delay(attempts)`` later;
     the ``max_attempts``-th failure marks the row ``dead`` (kept).
     """
@@ -305,6 +308,13 @@ def send_due(engine: Engine, transport: Transport, now: dt.datetime, *, limit: i
             .order_by(outbox.c.next_attempt_at, outbox.c.id).limit(limit)).all()
     sent = failed = dead = 0
     for row in rows:
+        # Claim the row with a short lease, so a second sender running at the same time skips it.
+        with engine.begin() as conn:
+            claimed = conn.execute(update(outbox).where(and_(
+                outbox.c.id == row.id, outbox.c.status == "pending",
+                outbox.c.next_attempt_at == row.next_attempt_at)).values(next_attempt_at=now + LEASE)).rowcount
+        if not claimed:
+            continue
         try:
             transport.send(build_message(row, transport.sender, now))
         except Exception as exc:  # any transport failure is retried, never lost

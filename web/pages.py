@@ -42,7 +42,13 @@ def _fmt_day(t: dt.datetime | None) -> str:
 
 @pages.app_template_filter("pct")
 def _fmt_pct(p: float | None) -> str:
-    return "—" if p is None else f"{100 * p:.0f} %"
+    if p is None:
+        return "—"
+    if 0 < p < 0.005:
+        return "< 1 %"  # not "0 %": a small chance is not no chance
+    if 0.995 <= p < 1:
+        return "> 99 %"
+    return f"{100 * p:.0f} %"
 
 
 @pages.app_template_filter("ugl")

@@ -45,7 +45,7 @@ def fan_chart(*, title: str, forecast: list[dict], history: list[dict], observed
     """
     if fmt not in FORMATS:
         raise ValueError(f"format must be one of {', '.join(FORMATS)}, got {fmt!r}")
-    fig = Figure(figsize=(8.0, 3.6), dpi=100, layout="constrained")
+    fig = Figure(figsize=(8.0, 4.0), dpi=100, layout="constrained")
     ax = fig.add_subplot()
     values: list[float] = []
 
@@ -97,7 +97,9 @@ def fan_chart(*, title: str, forecast: list[dict], history: list[dict], observed
                 va="center", color="#666666")
     handles, labels = ax.get_legend_handles_labels()
     if handles:
-        ax.legend(handles, labels, loc="upper left", fontsize=7.5, frameon=False, ncol=2)
+        # Below the axes, so it never hides data.
+        fig.legend(handles, labels, loc="outside lower center", fontsize=7.5, frameon=False,
+                   ncol=min(4, len(handles)))
     buf = io.BytesIO()
     fig.savefig(buf, format=fmt, metadata={"Software": None} if fmt == "png" else {"Date": None})
     return buf.getvalue()

@@ -245,3 +245,38 @@ def test_smtp_server_down_then_up_loses_nothing(engine, smtp_server):
     handler, smtp = smtp_server()
     assert send_due(engine, SmtpTransport(smtp), T0 + dt.timedelta(minutes=1)).sent == 2
     assert len(handler.messages) == 2 and outbox_counts(engine) == {"sent": 2}
+
+
+def test_a_second_sender_running_at_the_same_time_skips_a_claimed_message(engine, tmp_path):
+    queue(engine)
+    inner = []
+
+    class Reentrant:
+        sender = "alerts@bloomline.test"
+
+        def send(self, message):
+            # while this message is being handed over, another sender loop runs
+            inner.append(send_due(engine, MailboxTransport(tmp_path / "other"), T0))
+
+    assert send_due(engine, Reentrant(), T0).sent == 1
+    assert inner[0].sent == 0 and not (tmp_path / "other").exists()
+
+
+def test_a_crash_while_sending_leaves_the_message_pending_for_after_the_lease(engine):
+    from monitor.notify import LEASE
+
+    queue(engine)
+
+    class ProcessDied(BaseException):
+        """Stands for the process being killed mid-send (not an ordinary transport error)."""
+
+    class Crash:
+        sender = "alerts@bloomline.test"
+
+        def send(self, message):
+            raise ProcessDied("killed while sending")
+
+    with pytest.raises(ProcessDied, match="killed while sending"):
+        send_due(engine, Crash(), T0)
+    row = rows(engine)[0]
+    assert (row.status, row.attempts, row.next_attempt_at) == ("pending", 0, T0 + LEASE)

@@ -122,6 +122,8 @@ def test_no_forecast_yet_is_a_json_404_and_the_page_says_so(config, engine):
     assert r.status_code == 404 and "no forecast has been issued" in r.get_json()["error"]["message"]
     html = client.get("/").get_data(as_text=True)
     assert "No forecast has been issued yet." in html and CAUTION in html
+    chart = client.get("/water-bodies/quillmere/basins/west/forecast.svg")
+    assert chart.status_code == 200 and b"no forecast or observations yet" in chart.data
 
 
 def test_push_blueprint_is_registered_when_web_push_exists(config, engine, monkeypatch):
