@@ -181,7 +181,12 @@ def _failed(engine, feed, origin, sha, archive, now, message) -> BatchResult:
     return BatchResult(batch_id, feed.name, origin, "failed", message=message)
 
 
+SQLITE_CACHE_KIB = 65536  # page cache for a batch's connection: the readings index stays in memory
+
+
 def _store_batch(conn: Connection, config, feed, origin, sha, archive, parsed: Parsed, now) -> BatchResult:
+    if conn.dialect.name == "sqlite":
+        conn.exec_driver_sql(f"PRAGMA cache_size = -{SQLITE_CACHE_KIB}")
     batch_id = conn.execute(insert(ingest_batches).values(
         feed=feed.name, origin=clean_text(origin), sha256=sha, archive_path=str(archive),
         received_at=now, status="running", message="", received=0, accepted=0, flagged=0,

@@ -230,6 +230,9 @@ def parse_numbers(cells: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray
 
     ``values`` holds the number (the detection limit for ``<x``).
     """
+    fast = _numbers_fast(cells)
+    if fast is not None:
+        return fast
     s = pd.Series(cells, dtype=object).astype(str).str.strip()
     lower = s.str.lower()
     missing = lower.isin(MISSING_MARKERS).to_numpy()
@@ -248,6 +251,36 @@ def parse_numbers(cells: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray
         finite = np.isfinite(values)
     values[~finite] = np.nan
     return values, missing, below & finite
+
+
+_PLAIN_NUMBER_CHARS = frozenset("0123456789.-+eE")
+
+
+def _numbers_fast(cells: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """The common case — every cell a plain decimal number or empty — without regular expressions.
+
+    Within the characters ``0-9 . + - e E`` Python's float() accepts exactly
+    the strings :data:`_NUMBER` matches (it raises on ``1.2.3``, ``--1``,
+    ``e5``…), so one float() per cell suffices; anything else takes the
+    general path.
+    """
+    cells = list(cells)
+    if not cells or not all(type(c) is str for c in cells):
+        return None
+    if not set("".join(cells)) <= _PLAIN_NUMBER_CHARS:
+        return None
+    arr = np.asarray(cells, dtype=object)
+    missing = arr == ""
+    values = np.full(arr.size, np.nan)
+    try:
+        values[~missing] = arr[~missing].astype(float)
+    except (ValueError, OverflowError):
+        return None
+    finite = np.isfinite(values)
+    values[~finite] = np.nan
+    if (~finite & ~missing).any():
+        return None  # overflow to inf: let the general path reject it with its reason
+    return values, missing, np.zeros(arr.size, dtype=bool)
 
 
 def parse_times(cells: np.ndarray, time_format: str, timezone: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -390,7 +423,7 @@ def _readings(table: _Table, feed, config, origin, now, result: Parsed) -> Parse
         if len(row) != width:
             result.rejected.append(Rejection(table.lines[j], clean_text(table.raws[j]),
                                              f"expected {width} fields, got {len(row)}"))
-        elif [c.strip() for c in row] == norm_header:
+        elif row[0].strip() == norm_header[0] and [c.strip() for c in row] == norm_header:
             result.rejected.append(Rejection(table.lines[j], clean_text(table.raws[j]), "repeated header line"))
         else:
             keep.append(j)

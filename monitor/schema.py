@@ -121,8 +121,8 @@ readings = Table(
     Column("qc_tests", String(64), nullable=False, default=""),  # one digit per QC test, see monitor.qc
     Column("source", String(100), nullable=False),
     Column("batch_id", Integer, ForeignKey("ingest_batches.id"), nullable=False),
+    # The unique index also serves every (station, variable, time range) query: no second index.
     UniqueConstraint("station_id", "variable", "time_utc", "source"),
-    Index("ix_readings_station_variable_time", "station_id", "variable", "time_utc"),
 )
 
 driver_forecasts = Table(

@@ -2,7 +2,7 @@
 
 Revision ID: 0001
 Revises: 
-Create Date: 2026-12-01 23:56:32.825038
+Create Date: 2026-12-01 23:58:44.085249
 """
 from alembic import op
 import sqlalchemy as sa
@@ -168,9 +168,6 @@ def upgrade() -> None:
     sa.PrimaryKeyConstraint('id', name=op.f('pk_readings')),
     sa.UniqueConstraint('station_id', 'variable', 'time_utc', 'source', name=op.f('uq_readings_station_id_variable_time_utc_source'))
     )
-    with op.batch_alter_table('readings', schema=None) as batch_op:
-        batch_op.create_index('ix_readings_station_variable_time', ['station_id', 'variable', 'time_utc'], unique=False)
-
     op.create_table('rejected_rows',
     sa.Column('id', sa.Integer(), autoincrement=True, nullable=False),
     sa.Column('batch_id', sa.Integer(), nullable=False),
@@ -203,9 +200,6 @@ def downgrade() -> None:
         batch_op.drop_index(batch_op.f('ix_rejected_rows_batch_id'))
 
     op.drop_table('rejected_rows')
-    with op.batch_alter_table('readings', schema=None) as batch_op:
-        batch_op.drop_index('ix_readings_station_variable_time')
-
     op.drop_table('readings')
     with op.batch_alter_table('outbox', schema=None) as batch_op:
         batch_op.drop_index('ix_outbox_status_next')
