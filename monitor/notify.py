@@ -24,6 +24,7 @@ import smtplib
 import tempfile
 from dataclasses import dataclass
 from email.message import EmailMessage
+from email.policy import default as _default_policy
 from email.utils import format_datetime
 from pathlib import Path
 from typing import Protocol
@@ -41,6 +42,7 @@ from monitor.subscriptions import Subscriber, subscribers_for
 BASE_DELAY_S = 60.0
 MAX_DELAY_S = 6 * 3600.0
 MAX_ATTEMPTS = 12
+HEADER_POLICY = _default_policy.clone(max_line_length=998)
 #: How long a sender holds a message it is handing over before another sender may try it.
 LEASE = dt.timedelta(minutes=5)
 
@@ -275,7 +277,10 @@ def retry_delay(attempts: int, base_delay_s: float = BASE_DELAY_S, max_delay_s: 
 
 def build_message(row, sender: str, now: dt.datetime) -> EmailMessage:
     """The RFC 5322 message for one outbox row; its Message-ID is stable per row."""
-    msg = EmailMessage()
+    # Long header lines instead of folding: Python's folder leaves a doubled space before an
+    # encoded word (e.g. "1  µg/L") when a subject with non-ASCII text is folded. RFC 5322 §2.1.1
+    # allows lines up to 998 characters; the body stays quoted-printable.
+    msg = EmailMessage(policy=HEADER_POLICY)
     msg["From"] = sender
     msg["To"] = row.recipient
     msg["Subject"] = row.subject
@@ -284,7 +289,7 @@ def build_message(row, sender: str, now: dt.datetime) -> EmailMessage:
     created = row.created_at.astimezone(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
     msg["Message-ID"] = f"<bloomline-{created}-{row.id:07d}@{domain}>"
     msg["Auto-Submitted"] = "auto-generated"  # RFC 3834: no auto-replies, please
-    msg.set_content(row.body)
+    msg.set_content(row.body, cte="quoted-printable")
     return msg
 
 

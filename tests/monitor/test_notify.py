@@ -280,3 +280,33 @@ def test_a_crash_while_sending_leaves_the_message_pending_for_after_the_lease(en
         send_due(engine, Crash(), T0)
     row = rows(engine)[0]
     assert (row.status, row.attempts, row.next_attempt_at) == ("pending", 0, T0 + LEASE)
+
+
+def test_alert_change_reaches_the_subscriber_through_smtp(engine, tmp_path, smtp_server):
+    from monitor.alerts import evaluate_run
+    from monitor.schema import forecast_runs, forecast_values
+    from monitor.subscriptions import sync_from_config
+
+    cfg = parse_config({
+        "service": {"database": f"sqlite:///{tmp_path / 'notify.sqlite'}", "base_url": "http://bloomline.test"},
+        "water_bodies": [{"id": "hollin", "name": "Hollin Mere", "use": "drinking-water",
+                          "alerts": {"horizon_days": 2},
+                          "basins": [{"id": "arm", "name": "Reed Arm", "volume_m3": 1e6, "mean_depth_m": 4.0,
+                                      "area_m2": 2.5e5}]}],
+        "subscribers": [{"name": "Gil", "email": "gil@hollin.example", "water_bodies": ["hollin"]}],
+    })
+    sync_from_config(engine, cfg, T0)
+    with engine.begin() as conn:
+        run = conn.execute(insert(forecast_runs).values(water_body_id="hollin", analysis_utc=T0, created_at=T0,
+                                                        status="ok", message="")).inserted_primary_key[0]
+        conn.execute(insert(forecast_values), [
+            dict(run_id=run, basin_id="arm", valid_utc=T0 + dt.timedelta(days=k), quantity="cyanobacteria_chlorophyll",
+                 statistic="p_level_1", value=p) for k, p in enumerate([0.3, 0.6, 0.9])])
+    (event,) = evaluate_run(engine, cfg, "hollin", run, {"arm": 0.4}, now=T0)
+    handler, smtp = smtp_server()
+    assert send_due(engine, SmtpTransport(smtp), T0).sent == 1
+    (msg,) = handler.messages
+    assert msg["To"] == "gil@hollin.example"
+    assert msg["Subject"] == "Bloomline alert: Reed Arm, Hollin Mere raised to Alert Level 1 (1 µg/L)"
+    body = msg.get_content()
+    assert "90 %" in body and CAUTION in body and "/unsubscribe/" in body

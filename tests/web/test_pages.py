@@ -95,3 +95,18 @@ def test_subscribe_form_reports_a_bad_address_with_400(client):
 def test_unknown_token_link_is_404(client):
     assert client.get("/unsubscribe/not-a-token").status_code == 404
     assert client.post("/subscribe/confirm/not-a-token").status_code == 404
+
+
+def test_chart_draws_level_lines_bands_and_observations(client):
+    import io
+
+    from matplotlib import image
+
+    svg = client.get("/water-bodies/quillmere/basins/west/forecast.svg").get_data(as_text=True)
+    for label in ("forecast 5–95 %", "forecast 25–75 %", "forecast median", "analysis median",
+                  "observed daily mean", "Guidance level 1 (10 µg/L)"):
+        assert label in svg, label
+    # level 2 (50 µg/L) is far above West Bay's values (at most 13·1.8 µg/L) and is left out of view
+    assert "Guidance level 2" not in svg
+    png = client.get("/water-bodies/quillmere/basins/west/forecast.png").data
+    assert image.imread(io.BytesIO(png), format="png").shape[:2] == (400, 800)
