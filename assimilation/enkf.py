@@ -118,17 +118,34 @@ def _sqrt(E, HE, y, R, rho):
         weights, domain = np.unique(rho, axis=0, return_inverse=True)
         domain = domain.ravel()
         weights = weights / R
-    # A_u = (M-1) I + Y diag(w_u) Y^T for each distinct localization row u.
-    Yw = Y[None, :, :] * weights[:, None, :]                  # (U, M, p)
-    A = Yw @ Y.T                                              # (U, M, M)
-    A[:, np.arange(M), np.arange(M)] += M - 1
-    lam, V = np.linalg.eigh(A)
-    lam = np.maximum(lam, 1e-12 * (M - 1))
-    # Mean weights Pa~ Y diag(w) d and the symmetric square root sqrt((M-1) Pa~).
-    b = Yw @ d                                                # (U, M)
-    wbar = (V @ ((np.swapaxes(V, 1, 2) @ b[:, :, None])[:, :, 0] / lam)[:, :, None])[:, :, 0]
-    W = (V * np.sqrt((M - 1) / lam)[:, None, :]) @ np.swapaxes(V, 1, 2)
-    T = W + wbar[:, :, None]                                  # (U, M, M): column k -> member k
-    if T.shape[0] == 1:
-        return mean_x + T[0].T @ X
-    return mean_x + np.einsum("jmk,mj->kj", T[domain], X)
+    # Scaled observed anomalies of each distinct localization row u:
+    # S_u = Y diag(w_u)^(1/2) / sqrt(M-1), so that the ensemble-space
+    # precision is (M-1) (I + S_u S_u^T) (Hunt et al. 2007, eq. 21).
+    sw = np.sqrt(weights)                                     # (U, p)
+    S = Y[None, :, :] * (sw / np.sqrt(M - 1))[:, None, :]     # (U, M, p)
+    dw = sw * d                                               # (U, p): R^(-1/2)-scaled innovations
+    if M <= HE.shape[1]:
+        # Ensemble space: eigen-decomposition of I + S S^T (U, M, M).
+        lam, V = np.linalg.eigh(S @ np.swapaxes(S, 1, 2) + np.eye(M))
+        Vt = np.swapaxes(V, 1, 2)
+        wbar = (V @ ((Vt @ (S @ dw[:, :, None]))[:, :, 0] / lam)[:, :, None])[:, :, 0] / np.sqrt(M - 1)
+        T = (V / np.sqrt(lam)[:, None, :]) @ Vt + wbar[:, :, None]   # column k -> member k
+        if rho is None:
+            return mean_x + T[0].T @ X
+        return mean_x + np.einsum("jmk,mj->kj", T[domain], X)
+    # Observation space, p < M. Thin SVD S_u = L diag(s) V^T with r = p columns:
+    # (I + S S^T)^(-1/2) = I + L diag((1 + s²)^(-1/2) − 1) L^T and
+    # (I + S S^T)^(-1) S = L diag(s / (1 + s²)) V^T, so the cost is
+    # O(M p²) per row instead of an M × M eigen-problem.
+    L, s, Vt = np.linalg.svd(S, full_matrices=False)
+    coef = (s / (1.0 + s**2)) * (Vt @ dw[:, :, None])[:, :, 0]  # (U, r)
+    wbar = (L @ coef[:, :, None])[:, :, 0] / np.sqrt(M - 1)   # (U, M)
+    f = 1.0 / np.sqrt(1.0 + s**2) - 1.0                       # (U, r)
+    if rho is None:
+        L0 = L[0]
+        return mean_x + wbar[0] @ X + X + L0 @ (f[0][:, None] * (L0.T @ X))
+    # Per variable j in domain u: x_a = mean + X_j (wbar_u + 1) + L_u f_u L_u^T X_j.
+    Lj = L[domain]                                            # (n, M, r)
+    proj = np.einsum("jmr,mj->jr", Lj, X) * f[domain]         # (n, r)
+    return (mean_x + np.einsum("jm,mj->j", wbar[domain], X) + X
+            + np.einsum("jmr,jr->mj", Lj, proj))

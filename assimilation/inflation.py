@@ -65,13 +65,11 @@ def floor_spread(E: np.ndarray, sd_floor: float, columns=None) -> np.ndarray:
     scaled up to it; zero anomalies stay zero. Returns a new array.
     """
     out = np.array(E, dtype=float, copy=True)
-    cols = slice(None) if columns is None else columns
+    cols = np.arange(out.shape[1])[slice(None) if columns is None else columns]
     part = out[:, cols]
     mean = part.mean(axis=0)
     X = part - mean
     sd = X.std(axis=0, ddof=1)
-    scale = np.ones_like(sd)
     low = (sd < sd_floor) & (sd > 0)
-    scale[low] = sd_floor / sd[low]
-    out[:, cols] = mean + X * scale
+    out[:, cols[low]] = mean[low] + X[:, low] * (sd_floor / sd[low])
     return out
