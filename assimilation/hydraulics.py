@@ -4,11 +4,9 @@ Each basin is a well-mixed box of constant volume (a continuously stirred
 tank reactor); its outflow equals what enters it and carries its
 concentration downstream. For one basin with a constant inflow this is the
 chemostat of Monod (1950) and Novick & Szilard (1950), dilution rate
-D = Q / V. For the network the linear system dC/dt = L(t)·C + s(t) is
-advanced with the matrix exponential (frozen coefficients per step), which
-keeps concentrations non-negative and conserves mass exactly, because L is a
-Metzler matrix (non-negative off the diagonal) and its exponential is
-non-negative (Moler & Van Loan 2003, SIAM Review 45:3).
+D = Q / V. For the network the transport is dC/dt = L(t)·C + s(t) with L a
+Metzler matrix (non-negative off the diagonal); the integrator treats each
+flow as one process (:mod:`assimilation.integrate`).
 
 [1] Chapra, S.C. (1997) Surface Water-Quality Modeling. McGraw-Hill, ch. 6
     (systems of completely mixed reactors).
@@ -79,49 +77,3 @@ def inflow_source(spec, inflow_m3_s, inflow_concentration) -> np.ndarray:
     volume = np.array([b.volume_m3 for b in spec.basins])
     load = np.asarray(inflow_m3_s)[..., :, None] * np.asarray(inflow_concentration) * SECONDS_PER_DAY
     return np.einsum("bi,...is->...bs", inflow_matrix(spec.network), load) / volume[:, None]
-
-
-def metzler_expm(A, order: int = 10) -> np.ndarray:
-    """exp(A) of Metzler matrices A (..., n, n) (non-negative off the diagonal). [-]
-
-    Shift by the largest diagonal magnitude lam so that A + lam·I ≥ 0, then
-    exp(A) = exp(−lam)·exp(A + lam·I) with a truncated Taylor series and
-    scaling and squaring (Moler & Van Loan 2003, SIAM Review 45:3). Every
-    term of the series and every squaring is non-negative, so the result is
-    non-negative whatever the truncation; with the scaled norm ≤ 1/2 the
-    truncation error of order 10 is below 1e-16 relative.
-    """
-    A = np.asarray(A, dtype=float)
-    n = A.shape[-1]
-    eye = np.eye(n)
-    lam = np.max(-np.diagonal(A, axis1=-2, axis2=-1), axis=-1, initial=0.0)
-    N = A + lam[..., None, None] * eye
-    norm = np.max(np.sum(N, axis=-1), axis=-1) if N.size else np.zeros(N.shape[:-2])
-    squarings = int(max(0, np.ceil(np.log2(max(float(np.max(norm, initial=0.0)), 1e-300) / 0.5))))
-    X = N / 2.0 ** squarings
-    term = np.broadcast_to(eye, N.shape).copy()
-    F = term.copy()
-    for k in range(1, order + 1):
-        term = term @ X / k
-        F = F + term
-    for _ in range(squarings):
-        F = F @ F
-    return np.exp(-lam)[..., None, None] * F
-
-
-def propagators(L, dt_d):
-    """Exact propagators of dC/dt = L·C + s over dt with L, s frozen.
-
-    L (..., B, B) [1/d] Metzler, dt_d [d]. Returns Phi = exp(L·dt)
-    (..., B, B) [-] and Gamma = ∫₀^dt exp(L·τ) dτ (..., B, B) [d], both
-    non-negative, from one exponential of the block matrix [[L, I], [0, 0]]·dt
-    (Van Loan 1978, IEEE Trans. Automat. Control 23:395). Then
-    C(dt) = Phi·C(0) + Gamma·s.
-    """
-    L = np.asarray(L)
-    B = L.shape[-1]
-    block = np.zeros(L.shape[:-2] + (2 * B, 2 * B))
-    block[..., :B, :B] = L * dt_d
-    block[..., :B, B:] = np.eye(B) * dt_d
-    F = metzler_expm(block)
-    return F[..., :B, :B], F[..., :B, B:]

@@ -1,26 +1,37 @@
 """Fixed-step, positivity-preserving, mass-conserving integrator of the model.
 
-One step of length h is a Strang splitting (Strang 1968, SIAM J. Numer.
-Anal. 5:506) of transport and local processes:
+A second-order modified Patankar–Runge–Kutta scheme (MPRK22, Burchard,
+Deleersnijder & Meister 2003, "A high-order conservative Patankar-type
+discretisation for stiff systems of production–destruction equations",
+Applied Numerical Mathematics 47:1–30), written per process as in
+Broekhuizen, Rickard, Bruggeman & Meister (2008), Applied Numerical
+Mathematics 58:319–340, so that processes with several reactants (growth
+takes up N and P in a fixed ratio) stay stoichiometric:
 
-    transport(h/2) → processes(h) → transport(h/2)
+* every process flux is multiplied by a weight c'/c* of the species it
+  consumes (c' the new value, c* the predictor); growth, which consumes N
+  and P, by q = (N'/N*)·(P'/P*);
+* losses of a group (mortality, settling, outflow) and the outflow of N or
+  P consume only that species: their weights make the update for that
+  species linear-implicit;
+* q is the root of one concave scalar equation per (member, basin), found by
+  Newton's method from the left (never leaves the positive region);
+* flow from basin k to basin j is one process: the loss in k and the gain
+  in j carry the same weight, so the basins are swept in the order of the
+  (acyclic) network, as many vectorised sweeps as the longest flow path.
 
-* Transport through the basin network is linear in the state and is
-  advanced exactly with the matrix exponential, coefficients frozen at the
-  middle of the step (:func:`assimilation.hydraulics.propagators`).
-* Local processes (growth, uptake, mortality, recycling, settling, sediment
-  release) use the second-order modified Patankar scheme of Bruggeman,
-  Burchard, Kooi & Sommeijer (2007), "A second-order, unconditionally
-  positive, mass-conserving integration scheme for biochemical systems",
-  Applied Numerical Mathematics 57:36–58. Each stage multiplies the whole
-  tendency of a basin by one scalar p ∈ (0, ~1], the root of
-  p = Π_j (c_j + p·h·f_j) / c_j* over the species j with a negative
-  tendency, so every concentration stays positive and, because all
-  processes are scaled alike, every linear invariant (total N, total P) is
-  kept to round-off.
+Every process is scaled as a whole, so total N and total P are conserved to
+round-off apart from the true sources and sinks, all concentrations stay
+positive for any step, and a steady state of the equations is a fixed point
+of the scheme (the chemostat checks rely on this). The predictor is the
+explicit Euler step where it keeps every concentration of a basin above
+half its value, else the first-order Patankar step. The light factor of a
+step is its time mean by 3-point Gauss–Legendre quadrature: irradiance
+changes within an hour far more than the state does (sunrise, sunset).
 
-Vectorised over members and basins; the only Python loop is over time
-steps. Drivers are interpolated once for all steps of a call.
+Vectorised over members and basins; the only Python loops are over time
+steps and over the few network sweeps. Drivers are interpolated once for all
+steps of a call.
 """
 from __future__ import annotations
 
@@ -68,77 +79,99 @@ def _patankar_factor(a: np.ndarray, b: np.ndarray, d: np.ndarray, start: float =
     return p
 
 
-def _patankar_update(C, Cstar, f, h, co):
-    """One modified Patankar update of the local processes over h [d].
+def _patankar_update(C, Cstar, f, outflux, source, h, co):
+    """One modified Patankar update over h [d]; returns the new blocks (M, B, S).
 
-    C the state at the start of the step and Cstar the weighting state,
-    blocks (M, B, 2 + G) [µg/L]; f the process fluxes (:class:`ProcessFluxes`).
-    Each process is scaled by the ratio new/weighting of the species it
-    consumes (Burchard, Deleersnijder & Meister 2003, Appl. Numer. Math.
-    47:1; for processes with several reactants the product of the ratios,
-    Broekhuizen et al. 2008, Appl. Numer. Math. 58:319):
+    C the state at the start of the step and Cstar the weighting state
+    (predictor), blocks (M, B, 2 + G) [µg/L]; f the local process fluxes
+    (:class:`model.ProcessFluxes`) [µg/L/d]; outflux (M, B, S) [µg/L/d] the
+    flux leaving each basin with its outflow (weighted here by the basin's
+    own c'/c*); source (M, B, S) [µg/L/d] what enters from inflows and, with
+    its weight already applied, from upstream basins.
 
-    * losses of group g (mortality, settling) consume A_g: weight A_g'/A_g*;
-    * growth of all groups consumes N and P: one weight q = (N'/N*)·(P'/P*).
-
-    A_g' is linear in q and N', P' decrease linearly in q, so q is the root
-    of a concave scalar equation (:func:`_patankar_factor`). Every process is
-    scaled as a whole, so total N and P are conserved to round-off, and all
-    concentrations stay positive.
+    A_g' = (A_g + h·(q·G_g + source)) / (1 + h·(losses + outflux)/A_g*) is
+    linear in q; N' and P' are (alpha − beta·q)/(c* + h·outflux)·c*, so q is
+    the root of q = Π (alpha − beta·q)/(c* + h·outflux) over N and P.
     """
     a_n, a_p = co.n_to_chl, co.p_to_chl
-    A, N, P = C[..., 2:], C[..., 0:1], C[..., 1:2]
+    A, NP = C[..., 2:], C[..., :2]
     A_star = np.maximum(Cstar[..., 2:], _TINY)
-    loss = f.mortality + f.settling
-    denom = 1.0 + h * loss / A_star                          # A_g' = (A_g + h q G_g) / denom
-    base_A = A / denom
+    denom = 1.0 + h * (f.mortality + f.settling + outflux[..., 2:]) / A_star
+    base_A = (A + h * source[..., 2:]) / denom
     slope_A = h * f.growth / denom
-    # N' = N + h Σ_g r a_N m_g (A_g'/A_g*) − q h a_N Σ_g G_g  =  alpha − beta q
-    recycled_w = h * co.recycled * f.mortality / A_star      # per unit of A_g'
+    # recycled mortality returns to N and P with the weight A_g'/A_g* of its donor
+    recycled_w = h * co.recycled * f.mortality / A_star
     ret0 = np.sum(recycled_w * base_A, axis=-1, keepdims=True)
     ret1 = np.sum(recycled_w * slope_A, axis=-1, keepdims=True)
     uptake = h * np.sum(f.growth, axis=-1, keepdims=True)
-    source_p = h * np.asarray(f.sediment_phosphorus)
-    if np.ndim(source_p):
-        source_p = source_p[:, None]
-    alpha = np.concatenate([N + a_n * ret0, P + a_p * ret0 + source_p], axis=-1)
-    beta = np.concatenate([a_n * (uptake - ret1), a_p * (uptake - ret1)], axis=-1)
-    beta = np.maximum(beta, 0.0)
+    stoich = np.array([a_n, a_p])
+    alpha = NP + h * source[..., :2] + stoich * ret0
+    if np.ndim(f.sediment_phosphorus):
+        alpha[..., 1] += h * f.sediment_phosphorus
+    beta = np.maximum(stoich * (uptake - ret1), 0.0)
+    NP_star = Cstar[..., :2]
+    d = NP_star + h * outflux[..., :2]
     # a nutrient that growth does not consume (no growth, e.g. at night) drops out of q
     used = beta > 0
     q = _patankar_factor(np.where(used, beta, 0.0), np.where(used, alpha, 1.0),
-                         np.where(used, np.maximum(Cstar[..., :2], _TINY), 1.0), start=0.99)
+                         np.where(used, np.maximum(d, _TINY), 1.0), start=0.99)
     out = np.empty(np.broadcast_shapes(C.shape, f.growth.shape[:-1] + (C.shape[-1],)))
     out[..., 2:] = base_A + q * slope_A
-    out[..., :2] = np.maximum(alpha - q * beta, 0.0)
+    shrink = np.where(d > 0, NP_star / np.where(d > 0, d, 1.0), 1.0)
+    out[..., :2] = np.maximum(alpha - q * beta, 0.0) * shrink
     return out
 
 
-def _process_step(C, h, co, temp0, temp1, par_nodes):
-    """Second-order modified Patankar–Runge–Kutta step of the local processes.
+def _mean_fluxes(f0, f1):
+    return model.ProcessFluxes(0.5 * (f0.growth + f1.growth), 0.5 * (f0.mortality + f1.mortality),
+                               0.5 * (f0.settling + f1.settling),
+                               0.5 * (np.asarray(f0.sediment_phosphorus) + np.asarray(f1.sediment_phosphorus)))
 
-    Stage 1 is an explicit Euler predictor wherever it keeps every
-    concentration of a basin above half its value, else the first-order
-    Patankar update weighted by the old state; stage 2 is the MPRK22
-    corrector (Burchard et al. 2003) with the mean of the two stages' fluxes,
-    weighted by the predictor, which alone guarantees positivity and
-    conservation (its weights are 1 + O(h²) for any first-order predictor).
 
-    Both stages use the light factor averaged over the step by Gauss–Legendre
-    quadrature at par_nodes (Q, B): irradiance changes within an hour far
-    more than the state does (sunrise, sunset), and the trapezoidal rule of
-    the two stages would misjudge the daily light dose by 2–3 %.
+class _Network:
+    """Constant network operators of a spec: upstream coupling and sweep count."""
+
+    def __init__(self, spec: ModelSpec):
+        volume = np.array([b.volume_m3 for b in spec.basins])
+        conn = hydraulics.connection_matrix(spec.network)
+        #: gain in basin j per unit of outflux (concentration units of k) of basin k: V_k / V_j
+        self.coupling = conn * volume[None, :] / volume[:, None]
+        self.coupled = bool(conn.any())
+        depth = [0] * spec.n_basins
+        for start in range(spec.n_basins):       # path lengths along the acyclic network (setup only)
+            node, length = start, 1
+            while spec.network.downstream[node] != -1:
+                node = spec.network.downstream[node]
+                length += 1
+                depth[node] = max(depth[node], length)
+        self.sweeps = max(1, max(depth)) if self.coupled else 1
+
+
+def _step(C, h, co, net, temp0, temp1, par_nodes, dil0, dil1, src0, src1):
+    """One MPRK22 step over h [d] of blocks C (M, B, S) [µg/L].
+
+    dil0, dil1 (B,) [1/d] dilution rates and src0, src1 (B, S) [µg/L/d]
+    inflow sources at the start and the end of the step.
     """
     f0 = model.process_fluxes(C, co, temp0, par_nodes, _GAUSS_WEIGHTS)
-    C1 = C + h * model.tendency_from_fluxes(f0, co)
+    out0 = dil0[:, None] * C
+    gain0 = net.coupling @ out0 if net.coupled else 0.0
+    C1 = C + h * (model.tendency_from_fluxes(f0, co) - out0 + gain0 + src0)
     gentle = np.all(C1 >= 0.5 * C, axis=-1, keepdims=True)
     if not np.all(gentle):
-        C1 = np.where(gentle, C1, _patankar_update(C, C, f0, h, co))
+        C1 = np.where(gentle, C1, _patankar_update(C, C, f0, out0, gain0 + src0, h, co))
     f1 = model.process_fluxes(C1, co, temp1, par_nodes, _GAUSS_WEIGHTS)
-    fm = model.ProcessFluxes(0.5 * (f0.growth + f1.growth), 0.5 * (f0.mortality + f1.mortality),
-                             0.5 * (f0.settling + f1.settling),
-                             0.5 * (np.asarray(f0.sediment_phosphorus) + np.asarray(f1.sediment_phosphorus)))
-    return _patankar_update(C, C1, fm, h, co)
+    fm = _mean_fluxes(f0, f1)
+    outm = 0.5 * (out0 + dil1[:, None] * C1)
+    srcm = 0.5 * (src0 + src1)
+    if not net.coupled:
+        return _patankar_update(C, C1, fm, outm, np.broadcast_to(srcm, C.shape), h, co)
+    safe_C1 = np.where(C1 > 0, C1, 1.0)
+    weight = np.ones_like(C1)
+    for _ in range(net.sweeps):
+        Cn = _patankar_update(C, C1, fm, outm, net.coupling @ (outm * weight) + srcm, h, co)
+        weight = np.where(C1 > 0, Cn / safe_C1, 1.0)
+    return Cn
 
 
 def _check_ensemble(E, layout: StateLayout) -> np.ndarray:
@@ -181,6 +214,7 @@ def _run(E, spec, drivers, t0_d, save_times, dt_d, params):
         raise ValueError("save_times_d must be non-decreasing and not before t0_d")
     model.check_time_range(drivers, t0_d, save_times[-1])
     co = model.coefficients(spec, params, E.shape[0])
+    net = _Network(spec)
     M = E.shape[0]
 
     grid, save_index = _step_grid(float(t0_d), save_times, float(dt_d))
@@ -197,29 +231,15 @@ def _run(E, spec, drivers, t0_d, save_times, dt_d, params):
 
     h_all = np.diff(grid)
     nodes = model.forcing_at(drivers, spec, grid)
-    mids = model.forcing_at(drivers, spec, 0.5 * (grid[:-1] + grid[1:]))
-    flowing = np.any(mids.inflow_m3_s > 0)
-    if flowing:
-        L = hydraulics.transport_matrix(spec, mids.inflow_m3_s)                      # (K, B, B)
-        src = hydraulics.inflow_source(spec, mids.inflow_m3_s, mids.inflow_concentration_ugL)  # (K, B, S)
-        # one propagator per distinct step length (the grid has at most a few)
-        Phi = np.empty_like(L)
-        Gam = np.empty_like(L)
-        for h in np.unique(np.round(h_all, 15)):
-            sel = np.isclose(h_all, h, rtol=1e-12, atol=0.0)
-            Phi[sel], Gam[sel] = hydraulics.propagators(L[sel], 0.5 * h_all[sel][0])
-        gain = Gam @ src                                                              # (K, B, S)
-
+    volume = np.array([b.volume_m3 for b in spec.basins])
+    dilution = hydraulics.basin_outflows(spec.network, nodes.inflow_m3_s) * hydraulics.SECONDS_PER_DAY / volume
+    source = hydraulics.inflow_source(spec, nodes.inflow_m3_s, nodes.inflow_concentration_ugL)   # (K+1, B, S)
     temp = nodes.water_temperature_C
     par = model.forcing_at(drivers, spec, (grid[:-1, None] + h_all[:, None] * _GAUSS_NODES).ravel()).par_W_m2
     par = par.reshape(n_steps, _GAUSS_NODES.size, spec.n_basins)
     for k in range(n_steps):
-        h = h_all[k]
-        if flowing:
-            C = Phi[k] @ C + gain[k]
-        C = _process_step(C, h, co, temp[k], temp[k + 1], par[k])
-        if flowing:
-            C = Phi[k] @ C + gain[k]
+        C = _step(C, h_all[k], co, net, temp[k], temp[k + 1], par[k],
+                  dilution[k], dilution[k + 1], source[k], source[k + 1])
         while s_ptr < save_index.size and save_index[s_ptr] == k + 1:
             out[s_ptr] = C.reshape(M, -1)
             s_ptr += 1
