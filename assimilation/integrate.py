@@ -14,8 +14,8 @@ takes up N and P in a fixed ratio) stay stoichiometric:
 * losses of a group (mortality, settling, outflow) and the outflow of N or
   P consume only that species: their weights make the update for that
   species linear-implicit;
-* q is the root of one concave scalar equation per (member, basin), found by
-  Newton's method from the left (never leaves the positive region);
+* q is the smaller root of one quadratic per (member, basin), the one that
+  keeps N and P positive;
 * flow from basin k to basin j is one process: the loss in k and the gain
   in j carry the same weight, so the basins are swept in the order of the
   (acyclic) network, as many vectorised sweeps as the longest flow path.
@@ -42,84 +42,82 @@ import numpy as np
 from assimilation import hydraulics, model
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 
-_NEWTON_MAX_ITER = 50
-_NEWTON_TOL = 1e-14
 _TINY = 1e-300
 #: 3-point Gauss–Legendre nodes and weights on [0, 1] (Abramowitz & Stegun 1964, 25.4.29)
 _GAUSS_NODES = 0.5 + 0.5 * np.array([-np.sqrt(0.6), 0.0, np.sqrt(0.6)])
 _GAUSS_WEIGHTS = np.array([5.0, 8.0, 5.0]) / 18.0
 
 
-def _patankar_factor(a: np.ndarray, b: np.ndarray, d: np.ndarray, start: float = 0.0) -> np.ndarray:
-    """Root p of p = Π_j (b_j − p·a_j) / d_j per (member, basin). [-]
+def _growth_weight(alpha, beta, d):
+    """Root q of q = (alpha_N − beta_N·q)(alpha_P − beta_P·q) / (d_N·d_P). [-]
 
-    a ≥ 0 (zero for species left out), b, d > 0; arrays (M, B, S) → (M, B, 1).
-    g(p) = p − Π(...) is increasing and concave on [0, min b/a), so Newton's
-    method from a point left of the root (g ≤ 0) climbs monotonically to the
-    root and never leaves the interval where all factors are positive. The
-    iteration starts at ``start`` where that point is left of the root, else
-    at 0.
+    alpha, beta, d (..., 2) for N and P; beta ≥ 0 and alpha, d > 0 (a
+    nutrient left out has alpha = d = 1, beta = 0). The equation is the
+    quadratic beta_N·beta_P·q² − (alpha_N·beta_P + alpha_P·beta_N + d_N·d_P)·q
+    + alpha_N·alpha_P = 0; its smaller root, taken in the cancellation-free
+    form 2c / (b + sqrt(b² − 4ac)), is the one with both new concentrations
+    positive (the discriminant is at least (alpha_N·beta_P − alpha_P·beta_N)²).
+    Returns (..., 1).
     """
-    shape = a.shape[:-1] + (1,)
-    p = np.zeros(shape)
-    if start > 0.0:
-        rest = b - start * a
-        ok = np.all(rest > 0, axis=-1, keepdims=True)
-        ok &= start - np.prod(np.where(rest > 0, rest, 1.0) / d, axis=-1, keepdims=True) <= 0
-        p = np.where(ok, start, 0.0)
-    for _ in range(_NEWTON_MAX_ITER):
-        rest = b - p * a
-        h = np.prod(rest / d, axis=-1, keepdims=True)
-        g = p - h
-        dg = 1.0 + h * np.sum(a / rest, axis=-1, keepdims=True)
-        step = g / dg
-        p = p - step
-        if np.max(np.abs(step)) < _NEWTON_TOL:
-            break
-    return p
+    aN, aP = alpha[..., 0:1], alpha[..., 1:2]
+    bN, bP = beta[..., 0:1], beta[..., 1:2]
+    a = bN * bP
+    b = aN * bP + aP * bN + d[..., 0:1] * d[..., 1:2]
+    c = aN * aP
+    return 2.0 * c / (b + np.sqrt(np.maximum(b * b - 4.0 * a * c, 0.0)))
 
 
-def _patankar_update(C, Cstar, f, outflux, source, h, co):
-    """One modified Patankar update over h [d]; returns the new blocks (M, B, S).
+class _PatankarUpdate:
+    """Modified Patankar update over h [d] for given fluxes; :meth:`solve`
+    returns the new blocks (M, B, S) for a given source.
 
     C the state at the start of the step and Cstar the weighting state
     (predictor), blocks (M, B, 2 + G) [µg/L]; f the local process fluxes
     (:class:`model.ProcessFluxes`) [µg/L/d]; outflux (M, B, S) [µg/L/d] the
     flux leaving each basin with its outflow (weighted here by the basin's
-    own c'/c*); source (M, B, S) [µg/L/d] what enters from inflows and, with
-    its weight already applied, from upstream basins.
+    own c'/c*). The source (M, B, S) [µg/L/d] is what enters from inflows
+    and, with its weight already applied, from upstream basins; the parts
+    that do not depend on it are computed once.
 
     A_g' = (A_g + h·(q·G_g + source)) / (1 + h·(losses + outflux)/A_g*) is
-    linear in q; N' and P' are (alpha − beta·q)/(c* + h·outflux)·c*, so q is
+    linear in q; N' and P' are (alpha − beta·q)·c*/(c* + h·outflux), so q is
     the root of q = Π (alpha − beta·q)/(c* + h·outflux) over N and P.
     """
-    a_n, a_p = co.n_to_chl, co.p_to_chl
-    A, NP = C[..., 2:], C[..., :2]
-    A_star = np.maximum(Cstar[..., 2:], _TINY)
-    denom = 1.0 + h * (f.mortality + f.settling + outflux[..., 2:]) / A_star
-    base_A = (A + h * source[..., 2:]) / denom
-    slope_A = h * f.growth / denom
-    # recycled mortality returns to N and P with the weight A_g'/A_g* of its donor
-    recycled_w = h * co.recycled * f.mortality / A_star
-    ret0 = np.sum(recycled_w * base_A, axis=-1, keepdims=True)
-    ret1 = np.sum(recycled_w * slope_A, axis=-1, keepdims=True)
-    uptake = h * np.sum(f.growth, axis=-1, keepdims=True)
-    stoich = np.array([a_n, a_p])
-    alpha = NP + h * source[..., :2] + stoich * ret0
-    if np.ndim(f.sediment_phosphorus):
-        alpha[..., 1] += h * f.sediment_phosphorus
-    beta = np.maximum(stoich * (uptake - ret1), 0.0)
-    NP_star = Cstar[..., :2]
-    d = NP_star + h * outflux[..., :2]
-    # a nutrient that growth does not consume (no growth, e.g. at night) drops out of q
-    used = beta > 0
-    q = _patankar_factor(np.where(used, beta, 0.0), np.where(used, alpha, 1.0),
-                         np.where(used, np.maximum(d, _TINY), 1.0), start=0.99)
-    out = np.empty(np.broadcast_shapes(C.shape, f.growth.shape[:-1] + (C.shape[-1],)))
-    out[..., 2:] = base_A + q * slope_A
-    shrink = np.where(d > 0, NP_star / np.where(d > 0, d, 1.0), 1.0)
-    out[..., :2] = np.maximum(alpha - q * beta, 0.0) * shrink
-    return out
+
+    def __init__(self, C, Cstar, f, outflux, h, co):
+        self.h = h
+        self.A = C[..., 2:]
+        A_star = np.maximum(Cstar[..., 2:], _TINY)
+        self.denom = 1.0 + h * (f.mortality + f.settling + outflux[..., 2:]) / A_star
+        self.slope_A = h * f.growth / self.denom
+        # recycled mortality returns to N and P with the weight A_g'/A_g* of its donor
+        self.recycled_w = h * co.recycled * f.mortality / A_star
+        ret1 = (self.recycled_w * self.slope_A).sum(axis=-1, keepdims=True)
+        uptake = h * f.growth.sum(axis=-1, keepdims=True)
+        self.stoich = np.array([co.n_to_chl, co.p_to_chl])
+        self.NP = C[..., :2].copy()
+        if np.ndim(f.sediment_phosphorus):
+            self.NP = self.NP + np.stack([np.zeros_like(f.sediment_phosphorus), h * f.sediment_phosphorus], -1)
+        beta = np.maximum(self.stoich * (uptake - ret1), 0.0)
+        NP_star = Cstar[..., :2]
+        d = NP_star + h * outflux[..., :2]
+        # a nutrient that growth does not consume (no growth, e.g. at night) drops out of q
+        self.used = beta > 0
+        self.beta = np.where(self.used, beta, 0.0)
+        self.d = np.where(self.used, np.maximum(d, _TINY), 1.0)
+        self.shrink = np.where(d > 0, NP_star / np.where(d > 0, d, 1.0), 1.0)
+        self.shape = np.broadcast_shapes(C.shape, f.growth.shape[:-1] + (C.shape[-1],))
+
+    def solve(self, source):
+        h = self.h
+        base_A = (self.A + h * source[..., 2:]) / self.denom
+        ret0 = (self.recycled_w * base_A).sum(axis=-1, keepdims=True)
+        alpha = self.NP + h * source[..., :2] + self.stoich * ret0
+        q = _growth_weight(np.where(self.used, alpha, 1.0), self.beta, self.d)
+        out = np.empty(self.shape)
+        out[..., 2:] = base_A + q * self.slope_A
+        out[..., :2] = np.maximum(alpha - q * self.beta, 0.0) * self.shrink
+        return out
 
 
 def _mean_fluxes(f0, f1):
@@ -159,18 +157,19 @@ def _step(C, h, co, net, temp0, temp1, par_nodes, dil0, dil1, src0, src1):
     C1 = C + h * (model.tendency_from_fluxes(f0, co) - out0 + gain0 + src0)
     gentle = np.all(C1 >= 0.5 * C, axis=-1, keepdims=True)
     if not np.all(gentle):
-        C1 = np.where(gentle, C1, _patankar_update(C, C, f0, out0, gain0 + src0, h, co))
+        C1 = np.where(gentle, C1, _PatankarUpdate(C, C, f0, out0, h, co).solve(gain0 + src0))
     f1 = model.process_fluxes(C1, co, temp1, par_nodes, _GAUSS_WEIGHTS)
     fm = _mean_fluxes(f0, f1)
     outm = 0.5 * (out0 + dil1[:, None] * C1)
     srcm = 0.5 * (src0 + src1)
+    update = _PatankarUpdate(C, C1, fm, outm, h, co)
     if not net.coupled:
-        return _patankar_update(C, C1, fm, outm, np.broadcast_to(srcm, C.shape), h, co)
+        return update.solve(np.broadcast_to(srcm, C.shape))
     safe_C1 = np.where(C1 > 0, C1, 1.0)
-    weight = np.ones_like(C1)
+    weighted_out = outm
     for _ in range(net.sweeps):
-        Cn = _patankar_update(C, C1, fm, outm, net.coupling @ (outm * weight) + srcm, h, co)
-        weight = np.where(C1 > 0, Cn / safe_C1, 1.0)
+        Cn = update.solve(net.coupling @ weighted_out + srcm)
+        weighted_out = outm * np.where(C1 > 0, Cn / safe_C1, 1.0)
     return Cn
 
 

@@ -48,6 +48,27 @@ def steele_depth_average(surface_irradiance, saturation, attenuation, depth):
     return f
 
 
+def steele_depth_average_mean(surface_irradiance, weights, saturation, attenuation, depth):
+    """Weighted mean over Q times of :func:`steele_depth_average`. [-]
+
+    surface_irradiance (Q, ...) [W/m² PAR] at Q times (e.g. quadrature nodes
+    over a time step), weights (Q,) [-]; saturation, attenuation [1/m] and
+    depth [m] broadcast against each surface_irradiance[q] and do not change
+    over the Q times. Same closed form as :func:`steele_depth_average`, with
+    the attenuation terms computed once.
+    """
+    kh = np.asarray(attenuation) * depth
+    if np.any(kh <= 1e-12):
+        return sum(w * steele_depth_average(i0, saturation, attenuation, depth)
+                   for w, i0 in zip(weights, surface_irradiance))
+    bottom = np.exp(-kh)
+    total = 0.0
+    for w, i0 in zip(weights, surface_irradiance):
+        a0 = i0 / saturation
+        total = total + w * (np.exp(-a0 * bottom) - np.exp(-a0))
+    return (np.e / kh) * total
+
+
 def secchi_depth(attenuation, product=None):
     """Secchi depth from the attenuation coefficient, SD ≈ 1.7 / Kd. [m]
 

@@ -177,10 +177,7 @@ def light_factor(C: np.ndarray, co: Coefficients, par: np.ndarray, par_weights=N
     depth = co.depth_m[:, None]
     if par_weights is None:
         return light.steele_depth_average(par[..., :, None], co.light_saturation, k, depth)
-    f = 0.0
-    for w, par_q in zip(par_weights, par):
-        f = f + w * light.steele_depth_average(par_q[:, None], co.light_saturation, k, depth)
-    return f
+    return light.steele_depth_average_mean(par[:, :, None], par_weights, co.light_saturation, k, depth)
 
 
 def process_rates(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray, par_weights=None):
