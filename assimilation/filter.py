@@ -92,7 +92,7 @@ class FilterConfig:
     window_d: float = 1.0
     representativeness_fraction: float = observe.REPRESENTATIVENESS_FRACTION
     dt_d: float = 1.0 / 24.0
-    initial_state_log_sd: float = 0.3
+    initial_state_log_sd: float = 0.5
     parameter_log_sd: float = 0.2
     gain_log_sd: float = 0.2
     state_floor_ugL: float = 1e-3
@@ -302,7 +302,7 @@ def assimilate(checkpoint: Checkpoint, observations: Observations, spec: ModelSp
     raw = observations.select(in_cycle)
     windows = observe.aggregate_windows(raw, cfg.window_d,
                                         representativeness_fraction=cfg.representativeness_fraction)
-    window_index = np.floor(windows.time_d / cfg.window_d)
+    window_index = np.ceil(windows.time_d / cfg.window_d) - 1
     when = np.zeros(len(windows))
     for k in np.unique(window_index):  # loop over windows in the cycle, not members
         in_window = window_index == k

@@ -91,7 +91,9 @@ def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
                       representativeness_fraction: float = REPRESENTATIVENESS_FRACTION) -> Observations:
     """Aggregate readings into one value per (kind, basin, sensor, window).
 
-    Windows are [k·window_d, (k+1)·window_d) in epoch days [d]; each result is
+    Windows are (k·window_d, (k+1)·window_d] in epoch days [d], closed at the
+    end like a filter cycle (t0, t_end], so a reading stamped exactly at
+    midnight belongs to the day that ends then. Each result is
     stamped at the mean time of its readings, where the window mean best
     stands for the state under a linear trend. Value: the mean of the n readings. Error
     variance: instrument part mean(sd_i²)/n (independent errors average
@@ -109,7 +111,7 @@ def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
         raise ValueError(f"representativeness_fraction must be >= 0, got {representativeness_fraction!r}")
     if len(obs) == 0:
         return Observations.empty()
-    window = np.floor(obs.time_d / window_d).astype(np.int64)
+    window = (np.ceil(obs.time_d / window_d) - 1).astype(np.int64)
     kind_code = np.searchsorted(np.array(sorted(OBSERVABLE_KINDS)), obs.kind)
     keys = np.stack([window, kind_code, obs.basin, obs.sensor], axis=1)
     uniq, group = np.unique(keys, axis=0, return_inverse=True)

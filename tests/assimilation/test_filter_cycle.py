@@ -1,0 +1,96 @@
+"""The filter cycle's interface: statuses, diagnostics, split and input checks."""
+import json
+
+import numpy as np
+import pytest
+
+from assimilation import filter as bf
+from assimilation.observe import Observations
+from assimilation.spec import StateLayout
+
+from filter_twin import FIRST_GUESS, T0_D, make_twin
+
+
+@pytest.fixture(scope="module")
+def twin():
+    return make_twin(4, seed=5)
+
+
+def _start(twin, **kw):
+    cfg = bf.FilterConfig(members=16, n_sensors=2, **kw)
+    return cfg, bf.initial_checkpoint(twin.spec, cfg, T0_D, np.random.default_rng(1), initial_state=FIRST_GUESS)
+
+
+def test_cycle_without_readings_reports_no_data_and_advances(twin):
+    cfg, ckpt = _start(twin)
+    result = bf.assimilate(ckpt, Observations.empty(), twin.spec, twin.drivers, cfg, T0_D + 1)
+    assert result.status == "no_data"
+    assert result.checkpoint.time_d == T0_D + 1
+    assert result.diagnostics["n_obs"] == 0
+    assert not np.array_equal(result.checkpoint.ensemble, ckpt.ensemble)
+
+
+def test_cycle_diagnostics_are_json_ready_and_complete(twin):
+    cfg, ckpt = _start(twin)
+    result = bf.assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + 1)
+    assert result.status == "ok"
+    d = result.diagnostics
+    json.dumps(d)
+    # one window per (kind, basin, sensor) that reported in the day: 2 fluorescence + 1 phycocyanin
+    assert d["n_obs"] == 3 and d["n_readings"] == 72
+    for key in ("innovation_mean", "innovation_sd", "spread_error_ratio", "normalised_innovation_rms"):
+        assert np.isfinite(d[key])
+    assert set(d["by_kind"]) == {"chlorophyll_fluorescence", "phycocyanin"}
+    assert set(d["parameter_mean"]) == {n for n in ckpt.names if ":" in n and n.split(":")[0] in
+                                        ("mu_max_20_per_d", "mortality_20_per_d", "sensor_gain")}
+
+
+def test_readings_outside_the_cycle_are_not_analysed(twin):
+    cfg, ckpt = _start(twin)
+    result = bf.assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + 0.5)
+    assert result.diagnostics["n_readings"] == 36  # hours 1..12 of three hourly streams
+    assert max(result.diagnostics["analysis_times_d"]) <= T0_D + 0.5
+
+
+def test_split_gives_model_states_parameters_and_gains(twin):
+    cfg, ckpt = _start(twin)
+    states, params, gains = bf.split(ckpt, twin.spec)
+    layout = StateLayout(twin.spec)
+    assert states.shape == (16, layout.n_state)
+    assert set(params) == {"mu_max_20_per_d", "mortality_20_per_d"}
+    assert params["mu_max_20_per_d"].shape == (16, twin.spec.n_groups)
+    assert gains.shape == (16, 2)
+    assert np.all(states > 0) and np.all(gains > 0)
+
+
+def test_without_parameter_estimation_params_are_empty(twin):
+    cfg, ckpt = _start(twin, estimate_parameters=False)
+    _, params, _ = bf.split(ckpt, twin.spec)
+    assert params == {}
+    assert bf.assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + 1).status == "ok"
+
+
+def test_sensor_index_beyond_configured_gains_is_rejected(twin):
+    cfg, ckpt = _start(twin)
+    obs = Observations([T0_D + 0.5], ["chlorophyll_fluorescence"], [0], [5], [3.0], [0.3])
+    with pytest.raises(ValueError, match="sensor 5"):
+        bf.assimilate(ckpt, obs, twin.spec, twin.drivers, cfg, T0_D + 1)
+
+
+def test_end_before_checkpoint_is_rejected(twin):
+    cfg, ckpt = _start(twin)
+    with pytest.raises(ValueError, match="must not be before"):
+        bf.assimilate(ckpt, Observations.empty(), twin.spec, twin.drivers, cfg, T0_D - 1)
+
+
+def test_config_rejects_unknown_method():
+    with pytest.raises(ValueError, match="method must be one of"):
+        bf.FilterConfig(method="particle")
+
+
+def test_model_failure_is_reported_as_failed_status(twin):
+    cfg, ckpt = _start(twin)
+    # Drivers end after 5 days: a cycle far beyond them cannot be advanced.
+    result = bf.assimilate(ckpt, Observations.empty(), twin.spec, twin.drivers, cfg, T0_D + 400)
+    assert result.status == "failed"
+    assert result.checkpoint is ckpt
