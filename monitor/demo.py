@@ -24,6 +24,7 @@ from monitor import schema
 from monitor.caution import CAUTION
 from monitor.config import Config, load_config
 from monitor.frameworks import FRAMEWORKS
+from monitor.ingest import feed_files
 from monitor.readings import ingest_summary
 from monitor.service import Service
 from monitor.timeutil import UTC
@@ -105,13 +106,15 @@ def run_demo(workdir: Path, *, feeds: Path | None = None, quiet: bool = False,
     config_path = prepare_workdir(workdir.resolve(), feeds.resolve())
     config = load_config(config_path)
     say(f"Demo folder: {workdir.resolve()}")
-    clock = Clock(dt.datetime(2026, 5, 1, tzinfo=UTC))
+    # The season's files are loaded first, as an archive received after the season
+    # (so no reading lies in the future); the cycles then replay the season day by
+    # day and read only what was there at each analysis time.
+    clock = Clock(dt.datetime(2026, 11, 2, tzinfo=UTC))
     service = Service(config, clock=clock)
     try:
-        files = [p for fd in config.feeds if fd.kind == "csv-folder" and fd.path
-                 for p in sorted(fd.path.rglob(fd.pattern))]
+        files = [p for fd in config.feeds if fd.kind == "csv-folder" for p in feed_files(fd)]
         with _progress(None, "Ingesting feeds", quiet, length=len(files)) as bar:
-            results = service.ingest(progress=lambda result: bar.update(1))
+            results = service.ingest(progress=lambda i, n, result: bar.update(1))
         counts = ingest_summary(service.engine)
         say(f"Ingested {counts['accepted']} readings from {len(results)} files; "
             f"{counts['rejected']} rows rejected, {counts['duplicate']} duplicates.")
