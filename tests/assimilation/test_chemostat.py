@@ -1,0 +1,123 @@
+"""The model reduced to a chemostat: one basin, constant inflow, constant light.
+
+Expected values: Monod (1950); Herbert, Elsworth & Telling (1956) J. Gen.
+Microbiol. 14:601; Hsu, Hubbell & Waltman (1977) SIAM J. Appl. Math. 32:366;
+Tilman (1982) Resource Competition and Community Structure. Worked numbers
+in ../shared/REFERENCES.md [computed].
+"""
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from assimilation import integrate, light
+from assimilation.spec import Basin, Drivers, Group, ModelSpec, Network, StateLayout
+
+T0 = 20605.0
+VOLUME = 1.0e6
+SHORTWAVE = 200.0
+PAR_FRACTION = 0.45
+K_BACKGROUND = 0.5
+DEPTH = 2.0
+SATURATION = 100.0
+#: light factor of the chemostat (no self-shading), so that mu_max_20 = mu / F_LIGHT
+F_LIGHT = float(light.steele_depth_average(PAR_FRACTION * SHORTWAVE, SATURATION, K_BACKGROUND, DEPTH))
+
+
+def group(name, mu, k_n, mortality=0.0):
+    return Group(name, mu_max_20_per_d=mu / F_LIGHT, theta_growth=1.07, k_n_ugL=k_n, k_p_ugL=1e-3,
+                 light_saturation_W_m2=SATURATION, mortality_20_per_d=mortality, theta_mortality=1.08,
+                 settling_m_per_d=0.0)
+
+
+def chemostat(groups, dilution_per_d, yield_chl_per_n=0.5, recycled=0.0):
+    spec = ModelSpec(
+        basins=(Basin("culture_vessel", VOLUME, DEPTH, VOLUME / DEPTH),),
+        groups=tuple(groups), network=Network(downstream=(-1,), inflow_basin=(0,)),
+        par_fraction=PAR_FRACTION, background_attenuation_per_m=K_BACKGROUND, chlorophyll_attenuation_m2_mg=0.0,
+        nitrogen_to_chlorophyll=1.0 / yield_chl_per_n, phosphorus_to_chlorophyll=1.0, recycled_fraction=recycled)
+    q = dilution_per_d * VOLUME / 86400.0
+    t = np.array([T0, T0 + 2000.0])
+    drivers = Drivers(time_d=t, water_temperature_C=np.full((2, 1), 20.0), shortwave_W_m2=np.full(2, SHORTWAVE),
+                      inflow_m3_s=np.full((2, 1), q), inflow_nitrogen_ugL=np.full((2, 1), 10.0),
+                      inflow_phosphorus_ugL=np.full((2, 1), 1.0e4))
+    return spec, drivers
+
+
+#: A steady state of the equations is a fixed point of the Patankar scheme whatever the step,
+#: so 3-hour steps reach the same steady state as hourly ones, faster.
+STEP_D = 0.125
+
+
+def run(spec, drivers, days, chlorophyll0):
+    layout = StateLayout(spec)
+    E = layout.pack([[5.0]], [[1.0e4]], [[chlorophyll0]])
+    out = integrate.advance(E, spec, drivers, T0, T0 + days, dt_d=STEP_D)
+    return layout.nitrogen(out)[0, 0], layout.chlorophyll(out)[0, 0]
+
+
+def test_chemostat_steady_state_matches_break_even_concentration_and_yield():
+    # mu_max 1.0 /d, K 0.5, D 0.25 /d, Y 0.5, S_in 10 → S* = K·D/(mu − D) = 0.1667, X* = Y·(S_in − S*) = 4.9167
+    spec, drivers = chemostat([group("single", 1.0, 0.5)], 0.25)
+    N, A = run(spec, drivers, 400.0, [0.5])
+    assert N == pytest.approx(0.5 * 0.25 / (1.0 - 0.25), rel=1e-4)
+    assert N == pytest.approx(0.1667, abs=5e-5)
+    assert A[0] == pytest.approx(4.9167, abs=5e-4)
+
+
+def test_chemostat_with_mortality_breaks_even_at_total_loss_rate():
+    # Tilman (1982): R* = K·(D + m)/(mu − D − m); without recycling X* = D·Y·(S_in − R*)/(D + m)
+    D, m, K, mu = 0.2, 0.1, 0.5, 1.0
+    spec, drivers = chemostat([group("single", mu, K, mortality=m)], D)
+    N, A = run(spec, drivers, 400.0, [0.5])
+    r_star = K * (D + m) / (mu - D - m)
+    assert N == pytest.approx(r_star, rel=1e-4)
+    assert A[0] == pytest.approx(D * 0.5 * (10.0 - r_star) / (D + m), rel=1e-4)
+
+
+def test_chemostat_washes_out_when_mu_max_is_below_dilution():
+    # washout when D ≥ mu_max·S_in/(K + S_in) (Herbert et al. 1956); here mu_max 0.2 < D 0.25
+    spec, drivers = chemostat([group("slow", 0.2, 0.5)], 0.25)
+    N, A = run(spec, drivers, 300.0, [2.0])
+    assert A[0] < 1e-6
+    assert N == pytest.approx(10.0, rel=1e-5)
+
+
+def test_chemostat_critical_dilution_separates_survival_from_washout():
+    # critical D = mu_max·S_in/(K + S_in) = 1.0·10/10.5 = 0.9524 /d (REFERENCES.md [computed])
+    survive_spec, drivers = chemostat([group("single", 1.0, 0.5)], 0.90)
+    _, A_survive = run(survive_spec, drivers, 300.0, [1.0])
+    wash_spec, drivers = chemostat([group("single", 1.0, 0.5)], 1.00)
+    _, A_wash = run(wash_spec, drivers, 300.0, [1.0])
+    assert A_survive[0] == pytest.approx(0.5 * (10.0 - 0.5 * 0.9 / 0.1), rel=1e-3)
+    assert A_wash[0] < 1e-6
+
+
+def test_two_groups_on_one_nutrient_lowest_break_even_concentration_wins():
+    # Hsu, Hubbell & Waltman (1977); Tilman (1982) R* rule. D = 0.5:
+    # (mu 1.0, K 0.5) → λ = 0.5 and (mu 2.0, K 2.0) → λ = 0.667: the slower grower wins
+    spec, drivers = chemostat([group("slow_grower", 1.0, 0.5), group("fast_grower", 2.0, 2.0)], 0.5)
+    N, A = run(spec, drivers, 500.0, [1.0, 1.0])
+    assert N == pytest.approx(0.5, rel=1e-4)
+    assert A[0] == pytest.approx(0.5 * (10.0 - 0.5), rel=1e-4)
+    assert A[1] < 1e-6 * A[0]
+
+
+def test_steady_state_is_kept_by_hourly_and_six_hourly_steps():
+    spec, drivers = chemostat([group("single", 1.0, 0.5)], 0.25)
+    layout = StateLayout(spec)
+    n_star = 0.5 * 0.25 / 0.75
+    a_star = 0.5 * (10.0 - n_star)
+    E = layout.pack([[n_star]], [[1.0e4 - a_star]], [[[a_star]]])     # phosphorus_to_chlorophyll = 1
+    hourly = integrate.advance(E, spec, drivers, T0, T0 + 20.0, dt_d=1 / 24)
+    six_hourly = integrate.advance(E, spec, drivers, T0, T0 + 20.0, dt_d=0.25)
+    np.testing.assert_allclose(hourly, E, rtol=1e-9)
+    np.testing.assert_allclose(six_hourly, E, rtol=1e-9)
+
+
+def test_the_other_order_of_break_even_concentrations_reverses_the_winner():
+    # same pair at D = 0.5, but the fast grower with K = 0.5 has λ = 0.167 < 0.5
+    spec, drivers = chemostat([group("slow_grower", 1.0, 0.5), group("fast_grower", 2.0, 0.5)], 0.5)
+    N, A = run(spec, drivers, 500.0, [1.0, 1.0])
+    assert N == pytest.approx(0.5 * 0.5 / 1.5, rel=1e-4)
+    assert A[0] < 1e-6 * A[1]

@@ -1,0 +1,141 @@
+"""Spec, drivers and state layout: shapes, indices and the messages of bad input."""
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from assimilation import integrate, model
+from assimilation.parameters import default_groups, default_spec
+from assimilation.spec import Basin, Drivers, Network, StateLayout
+from model_scenarios import JUNE_FIRST_2026, initial_ensemble, summer_drivers, three_basin_spec
+
+
+def test_state_layout_is_basin_major_with_nitrogen_phosphorus_then_groups():
+    # layout documented in DEVELOPERS.md: [N_0, P_0, A_0,0 … A_0,G-1, N_1, …]
+    spec = three_basin_spec()
+    layout = StateLayout(spec)
+    assert layout.n_state == 3 * (2 + 2)
+    assert [layout.index_nitrogen(1), layout.index_phosphorus(1), layout.index_chlorophyll(1, 1)] == [4, 5, 7]
+    assert layout.names()[:4] == ["north_arm:nitrogen", "north_arm:phosphorus",
+                                  "north_arm:chl:green_algae", "north_arm:chl:cyanobacteria"]
+    E = np.arange(2 * layout.n_state, dtype=float).reshape(2, -1)
+    np.testing.assert_array_equal(layout.nitrogen(E), E[:, [0, 4, 8]])
+    np.testing.assert_array_equal(layout.phosphorus(E), E[:, [1, 5, 9]])
+    assert layout.chlorophyll(E).shape == (2, 3, 2)
+    assert layout.chlorophyll(E)[1, 2, 1] == E[1, layout.index_chlorophyll(2, 1)]
+    np.testing.assert_array_equal(layout.pack(layout.nitrogen(E), layout.phosphorus(E), layout.chlorophyll(E)), E)
+
+
+def test_layout_accessors_keep_leading_axes_of_saved_trajectories():
+    layout = StateLayout(three_basin_spec())
+    X = np.zeros((5, 7, layout.n_state))
+    assert layout.chlorophyll(X).shape == (5, 7, 3, 2)
+    assert layout.total_chlorophyll(X).shape == (5, 7, 3)
+
+
+def test_default_groups_include_a_cyanobacteria_group_and_another():
+    groups = default_groups()
+    assert sum(g.is_cyanobacteria for g in groups) == 1
+    assert len(groups) >= 2
+    cyano = next(g for g in groups if g.is_cyanobacteria)
+    assert cyano.settling_m_per_d == 0.0
+
+
+def test_network_rejects_a_loop():
+    with pytest.raises(ValueError, match="loop through basin 0"):
+        Network(downstream=(1, 0), inflow_basin=(0,))
+
+
+def test_network_rejects_an_unknown_basin_index():
+    with pytest.raises(ValueError, match=r"inflow_basin\[0\] must be a basin index in 0..1"):
+        Network(downstream=(1, -1), inflow_basin=(2,))
+
+
+def test_spec_rejects_network_of_another_size():
+    basins = three_basin_spec().basins
+    with pytest.raises(ValueError, match="2 entries but the spec has 3 basins"):
+        default_spec(basins, Network(downstream=(1, -1)))
+
+
+def test_basin_rejects_non_positive_volume():
+    with pytest.raises(ValueError, match="volume_m3 must be a positive number"):
+        Basin("bad_basin", volume_m3=0.0, mean_depth_m=2.0, area_m2=1.0)
+
+
+def test_drivers_reject_non_increasing_time():
+    d = summer_drivers(days=1)
+    with pytest.raises(ValueError, match="strictly increasing"):
+        Drivers(d.time_d[::-1], d.water_temperature_C, d.shortwave_W_m2, d.inflow_m3_s,
+                d.inflow_nitrogen_ugL, d.inflow_phosphorus_ugL)
+
+
+def test_drivers_reject_missing_values():
+    d = summer_drivers(days=1)
+    temperature = d.water_temperature_C.copy()
+    temperature[3, 1] = np.nan
+    with pytest.raises(ValueError, match="water_temperature_C must be finite"):
+        Drivers(d.time_d, temperature, d.shortwave_W_m2, d.inflow_m3_s, d.inflow_nitrogen_ugL,
+                d.inflow_phosphorus_ugL)
+
+
+def test_advance_rejects_a_span_the_drivers_do_not_cover():
+    spec = three_basin_spec()
+    with pytest.raises(ValueError, match="drivers cover epoch days"):
+        integrate.advance(initial_ensemble(spec, 2), spec, summer_drivers(days=2), JUNE_FIRST_2026,
+                          JUNE_FIRST_2026 + 3.0)
+
+
+def test_advance_rejects_negative_concentrations():
+    spec = three_basin_spec()
+    E = initial_ensemble(spec, 2)
+    E[1, 3] = -0.5
+    with pytest.raises(ValueError, match="negative concentrations"):
+        integrate.advance(E, spec, summer_drivers(days=2), JUNE_FIRST_2026, JUNE_FIRST_2026 + 1.0)
+
+
+def test_advance_rejects_unknown_or_misshapen_parameters():
+    spec = three_basin_spec()
+    E = initial_ensemble(spec, 2)
+    drivers = summer_drivers(days=2)
+    with pytest.raises(ValueError, match="unknown model parameter"):
+        integrate.advance(E, spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + 1.0,
+                          params={"k_n_ugL": np.ones((2, 2))})
+    with pytest.raises(ValueError, match="has 3 members, the ensemble has 2"):
+        integrate.advance(E, spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + 1.0,
+                          params={"mu_max_20_per_d": np.ones((3, 2))})
+
+
+def test_per_member_growth_rate_changes_only_that_member():
+    spec = three_basin_spec()
+    E = np.repeat(initial_ensemble(spec, 1), 2, axis=0)
+    drivers = summer_drivers(days=5)
+    mu = np.array([[g.mu_max_20_per_d for g in spec.groups]] * 2)
+    mu[1, 1] *= 1.5
+    X = integrate.advance(E, spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + 5.0, params={"mu_max_20_per_d": mu})
+    same = integrate.advance(E[:1], spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + 5.0)
+    np.testing.assert_allclose(X[0], same[0], rtol=1e-12)
+    layout = StateLayout(spec)
+    assert np.all(layout.chlorophyll(X)[1, :, 1] > layout.chlorophyll(X)[0, :, 1])
+
+
+def test_inflow_chlorophyll_is_carried_into_the_basin():
+    spec = three_basin_spec()
+    d = summer_drivers(days=3)
+    chl_in = np.zeros(d.inflow_m3_s.shape + (2,))
+    chl_in[:, 0, 1] = 50.0
+    with_chl = replace(d, inflow_chlorophyll_ugL=chl_in)
+    E = initial_ensemble(spec, 1)
+    a = integrate.advance(E, spec, d, JUNE_FIRST_2026, JUNE_FIRST_2026 + 3.0)
+    b = integrate.advance(E, spec, with_chl, JUNE_FIRST_2026, JUNE_FIRST_2026 + 3.0)
+    layout = StateLayout(spec)
+    assert layout.chlorophyll(b)[0, 0, 1] > layout.chlorophyll(a)[0, 0, 1]
+
+
+def test_total_phosphorus_adds_algal_phosphorus_by_stoichiometry():
+    spec = three_basin_spec()
+    layout = StateLayout(spec)
+    E = layout.pack(np.full((1, 3), 100.0), np.full((1, 3), 10.0), np.full((1, 3, 2), 5.0))
+    np.testing.assert_allclose(model.total_phosphorus(E, spec), 10.0 + 10.0 * spec.phosphorus_to_chlorophyll)
+    # Redfield by mass 41:7.2:1 (Redfield 1958) with carbon:chlorophyll 50 → 8.78 µg N and 1.22 µg P per µg chl-a
+    assert spec.nitrogen_to_chlorophyll == pytest.approx(50 * 7.2 / 41)
+    assert spec.phosphorus_to_chlorophyll == pytest.approx(50 / 41)

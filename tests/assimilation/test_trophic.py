@@ -1,0 +1,48 @@
+import numpy as np
+import pytest
+
+from assimilation.trophic import trophic_class, tsi_chlorophyll, tsi_secchi, tsi_total_phosphorus
+
+
+@pytest.mark.parametrize("secchi, expected", [(1.0, 60.00), (2.0, 50.01)])
+def test_tsi_secchi_matches_carlson_worked_values(secchi, expected):
+    # Carlson (1977) Limnol. Oceanogr. 22:361, TSI(SD) = 60 − 14.41 ln SD; worked values in REFERENCES.md [computed]
+    assert tsi_secchi(secchi) == pytest.approx(expected, abs=0.005)
+
+
+@pytest.mark.parametrize("chl, expected", [(1.0, 30.60), (20.0, 59.99)])
+def test_tsi_chlorophyll_matches_carlson_worked_values(chl, expected):
+    # Carlson (1977), TSI(Chl) = 9.81 ln Chl + 30.6 [computed]
+    assert tsi_chlorophyll(chl) == pytest.approx(expected, abs=0.005)
+
+
+@pytest.mark.parametrize("tp, expected", [(24.0, 49.98), (96.0, 69.97)])
+def test_tsi_total_phosphorus_matches_carlson_worked_values(tp, expected):
+    # Carlson (1977), TSI(TP) = 14.42 ln TP + 4.15 [computed]
+    assert tsi_total_phosphorus(tp) == pytest.approx(expected, abs=0.005)
+
+
+def test_tsi_halving_secchi_depth_adds_ten_units():
+    # Carlson (1977): the index is built so that each halving of Secchi depth adds 10 units
+    assert tsi_secchi(0.5) - tsi_secchi(1.0) == pytest.approx(10.0, abs=0.02)
+
+
+def test_tsi_functions_are_vectorised():
+    out = tsi_chlorophyll(np.array([1.0, 20.0]))
+    np.testing.assert_allclose(out, [30.60, 59.99], atol=0.005)
+
+
+@pytest.mark.parametrize("tsi, label", [
+    (35.0, "oligotrophic"), (40.0, "mesotrophic"), (49.9, "mesotrophic"),
+    (50.0, "eutrophic"), (70.0, "eutrophic"), (70.1, "hypereutrophic"),
+])
+def test_trophic_class_uses_carlson_boundaries(tsi, label):
+    # classes: oligotrophic < 40, mesotrophic 40–50, eutrophic 50–70, hypereutrophic > 70 (REFERENCES.md)
+    assert trophic_class(tsi) == label
+
+
+def test_tsi_rejects_non_positive_values():
+    with pytest.raises(ValueError, match="chl_ugL must be positive"):
+        tsi_chlorophyll(0.0)
+    with pytest.raises(ValueError, match="tsi must be a finite number"):
+        trophic_class(float("nan"))
