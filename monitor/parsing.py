@@ -47,7 +47,9 @@ _NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d{1,4})?"
 _NUMBER_RE = re.compile(_NUMBER)
 _BELOW_RE = re.compile(r"<\s*(" + _NUMBER + r")")
 _OFFSET_RE = r"(?:[zZ]|[+-]\d\d(?::?\d\d)?)$"
-FUTURE_TOLERANCE = pd.Timedelta(days=1)  # readings dated later than now + this are rejected
+FUTURE_TOLERANCE = pd.Timedelta(days=1)
+EARLIEST = pd.Timestamp("1900-01-01")  # times outside [EARLIEST, LATEST) are rejected
+LATEST = pd.Timestamp("2200-01-01")  # readings dated later than now + this are rejected
 
 
 @dataclass
@@ -115,7 +117,8 @@ class _Table:
 
 
 def _csv_table(text: str, rejected: list[Rejection], record_lines: list[int]) -> _Table | None:
-    lines = text.splitlines(keepends=True)
+    # split on \n, \r and \r\n only (str.splitlines would also split on \x85, \u2028, form feeds…)
+    lines = list(io.StringIO(text, newline=""))
     reader = csv.reader(iter(lines))
     header: list[str] | None = None
     rows, row_lines, raws = [], [], []
@@ -288,7 +291,8 @@ def parse_times(cells: np.ndarray, time_format: str, timezone: str) -> tuple[np.
 
     ``time_format`` is ``"iso"`` (ISO 8601, with or without offset) or a
     strftime format; naive times are local times in ``timezone``. Reason
-    codes for failures: 1 unparseable, 2 nonexistent/ambiguous local time.
+    codes for failures: 1 unparseable, 2 nonexistent/ambiguous local time,
+    3 outside the years 1900–2199.
     """
     s = pd.Series(cells, dtype=object).astype(str).str.strip()
     n = len(s)
@@ -325,8 +329,11 @@ def parse_times(cells: np.ndarray, time_format: str, timezone: str) -> tuple[np.
                 code[idx[dst]] = 2
                 parsed = parsed.dt.tz_convert("UTC")
         idx = np.nonzero(sel)[0]
-        good = parsed.notna().to_numpy()
-        ns = parsed.dt.tz_convert("UTC").dt.tz_localize(None).astype("datetime64[ns]").to_numpy().astype(np.int64)
+        naive_utc = parsed.dt.tz_convert("UTC").dt.tz_localize(None)
+        inside = ((naive_utc >= EARLIEST) & (naive_utc < LATEST)).to_numpy(dtype=bool)
+        code[idx[parsed.notna().to_numpy() & ~inside]] = 3
+        good = inside
+        ns = naive_utc.where(inside, EARLIEST).astype("datetime64[ns]").to_numpy().astype(np.int64)
         out[idx[good]] = ns[good]
         ok[idx[good]] = True
     return out, ok, code
@@ -378,6 +385,15 @@ def parse_payload(payload: bytes, feed, config=None, *, origin: str = "",
             rejected.append(Rejection(1, clean_text(text), "no header line"))
         return result
     return _readings(table, feed, config, origin, now, result)
+
+
+def _time_reason(cell, code: int, timezone: str, fmt_name: str) -> str:
+    shown = repr(str(cell)[:60])
+    if code == 2:
+        return f"time {shown} does not exist or is ambiguous in {timezone} (daylight saving)"
+    if code == 3:
+        return f"time {shown} is outside the years 1900-2199"
+    return f"time {shown} does not match the time format {fmt_name}"
 
 
 def _reject_all(table: _Table, reason: str, result: Parsed) -> Parsed:
@@ -453,9 +469,7 @@ def _readings(table: _Table, feed, config, origin, now, result: Parsed) -> Parse
     tcell = column(index["time"])
     t_ns, t_ok, t_code = parse_times(tcell, feed.time_format, feed.timezone)
     fmt_name = "ISO 8601" if feed.time_format == "iso" else repr(feed.time_format)
-    fail(~t_ok, [f"time {str(c)[:60]!r} does not exist or is ambiguous in {feed.timezone} (daylight saving)"
-                 if code == 2 else f"time {str(c)[:60]!r} does not match the time format {fmt_name}"
-                 for c, code in zip(tcell, t_code)])
+    fail(~t_ok, [_time_reason(c, code, feed.timezone, fmt_name) for c, code in zip(tcell, t_code)])
     if feed.role == "readings" and now is not None:
         limit = pd.Timestamp(now).tz_convert("UTC").tz_localize(None) + FUTURE_TOLERANCE
         future = t_ok & (t_ns > limit.value)
