@@ -10,6 +10,7 @@ yields readings, or a rejection with its line, or both.
 from __future__ import annotations
 
 import codecs
+import io
 import json
 import re
 import tempfile
@@ -133,14 +134,19 @@ def test_adversarial_json_never_crashes_and_every_record_is_accounted_for(payloa
 @given(st.lists(st.tuples(st.integers(0, 95), cell, cell, cell), min_size=1, max_size=15))
 def test_accepted_values_are_exactly_the_plain_numbers_written(rows):
     lines = ["timestamp,chl,pc,temp"]
-    for minute, *cells in rows:
-        lines.append(f"2026-07-01 {minute // 4:02d}:{15 * (minute % 4):02d}," + ",".join(
-            '"' + c.replace('"', '""') + '"' for c in cells))
+    row_at_line = {}  # physical line where each record starts (quoted cells may hold line breaks)
+    next_line = 2
+    for k, (minute, *cells) in enumerate(rows):
+        record = f"2026-07-01 {minute // 4:02d}:{15 * (minute % 4):02d}," + ",".join(
+            '"' + c.replace('"', '""') + '"' for c in cells)
+        lines.append(record)
+        row_at_line[next_line] = k
+        next_line += len(list(io.StringIO(record + "\n", newline="")))
     parsed = parse_payload("\n".join(lines).encode(), BUOYS, CONFIG, origin="drop/FW-1/x.csv", now=NOW)
     check_accounting(parsed)
     columns = {"chlorophyll_fluorescence": 1, "phycocyanin": 2, "water_temperature": 3}
     for var, value, line in zip(parsed.variable, parsed.value, parsed.line):
-        written = rows[line - 2][columns[var]].strip()
+        written = rows[row_at_line[int(line)]][columns[var]].strip()
         if np.isnan(value):
             assert written.lower() in {"", "na", "n/a", "nan", "null", "none"}
         else:
