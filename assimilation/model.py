@@ -292,6 +292,18 @@ def total_phosphorus(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
     return layout.phosphorus(E) + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(E)
 
 
+def secchi_depth(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
+    """Secchi depth implied by the state, SD ≈ 1.7 / (k_bg + k_chl·ΣA) [m], (..., B).
+
+    Beer–Lambert attenuation with self-shading (:mod:`light`) and the
+    Poole–Atkins rule of thumb; for Carlson's TSI(SD) on the page.
+    """
+    layout = StateLayout(spec)
+    k = light.attenuation_coefficient(spec.background_attenuation_per_m, spec.chlorophyll_attenuation_m2_mg,
+                                      layout.total_chlorophyll(E))
+    return light.secchi_depth(k)
+
+
 def total_mass(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
     """Total nitrogen and phosphorus in the whole network [kg], (..., 2)."""
     volume = np.array([b.volume_m3 for b in spec.basins])
