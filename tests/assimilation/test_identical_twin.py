@@ -14,12 +14,12 @@ import pytest
 from assimilation import filter as bf
 from assimilation.spec import StateLayout
 
-from filter_twin import CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, make_twin
+from filter_twin import CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TWIN_SETTINGS, make_twin
 
 DAYS = 90
 SEEDS = (1, 2, 3, 4)
 SPIN_UP_DAYS = 20
-CONFIG = dict(n_sensors=2, inflation=1.0, relaxation_to_prior_spread=0.25, representativeness_fraction=0.0)
+CONFIG = dict(TWIN_SETTINGS, n_sensors=2, representativeness_fraction=0.0)
 
 
 def _run(seed, method="sqrt"):
