@@ -31,8 +31,8 @@ from assimilation.parameters import default_spec
 from assimilation.spec import Basin, Drivers, ModelSpec, Network, StateLayout
 from monitor import alerts, store
 from monitor.config import Config, WaterBodyConfig
-from monitor.drivers import forecast_drivers, observed_drivers
-from monitor.readings import readings_frame
+from monitor.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
+from monitor.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import from_epoch_days, to_epoch_days
 
 #: Air-temperature offsets [°C] of the forecast's driver scenarios; members are
@@ -70,7 +70,8 @@ def chlorophyll_sensors(config: Config, wb: WaterBodyConfig) -> tuple[str, ...]:
 
 def filter_config(config: Config, wb: WaterBodyConfig) -> enkf_filter.FilterConfig:
     return enkf_filter.FilterConfig(members=config.filter.members, method=config.filter.method,
-                                    n_sensors=len(chlorophyll_sensors(config, wb)), **dict(config.filter.options))
+                                    n_sensors=len(chlorophyll_sensors(config, wb)),
+                                    window_d=config.filter.window_days, **dict(config.filter.options))
 
 
 # --------------------------------------------------------------------------
@@ -96,15 +97,21 @@ class CycleInputs:
     basin_ids: tuple[str, ...] = ()
 
 
-def observations_frame(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
-                       end: dt.datetime) -> pd.DataFrame:
-    stations = [s.id for s in config.stations if s.water_body == wb.id and s.basin is not None]
+def station_readings(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
+                     end: dt.datetime) -> pd.DataFrame:
+    """Stored readings of every station of ``wb`` (basins, gauges, weather) in [start, end]."""
+    stations = sorted({s.id for s in config.stations if s.water_body == wb.id} | set(driver_stations(config, wb)))
     max_flag = 3 if config.filter.assimilate_suspect else 1
-    frame = readings_frame(engine, stations=stations, variables=list(OBSERVABLE_KINDS),
-                           start=start, end=end, max_flag=max_flag)
-    if not frame.empty:
-        frame = frame[frame.time_utc > start]
-    return frame
+    return readings_frame(engine, stations=stations, start=start, end=end, max_flag=max_flag)
+
+
+def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig, after: dt.datetime) -> pd.DataFrame:
+    """The assimilable readings of ``wb``'s basins later than ``after``."""
+    if frame.empty:
+        return frame
+    basin_stations = {s.id for s in config.stations if s.water_body == wb.id and s.basin is not None}
+    return frame[frame.station_id.isin(basin_stations) & frame.variable.isin(OBSERVABLE_KINDS)
+                 & (frame.time_utc > after)]
 
 
 def to_observations(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig) -> Observations:
@@ -131,7 +138,8 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
     layout = StateLayout(spec)
     B, G = spec.n_basins, spec.n_groups
     cyano = spec.cyanobacteria_index
-    frame = observations_frame(engine, config, wb, at - dt.timedelta(days=14), at + dt.timedelta(days=2))
+    frame = observations_frame(station_readings(engine, config, wb, at - dt.timedelta(days=14),
+                                                at + dt.timedelta(days=2)), config, wb, at - dt.timedelta(days=14))
     basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations if s.water_body == wb.id and s.basin}
     N = np.full(B, FIRST_GUESS["nitrogen"])
     P = np.full(B, FIRST_GUESS["phosphorus"])
@@ -171,15 +179,23 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
     else:
         start = season_start or (analysis - dt.timedelta(days=1))
         blob, guess = None, first_guess(engine, config, wb, spec, start)
-    frame = observations_frame(engine, config, wb, start, analysis)
-    drivers = observed_drivers(engine, config, wb, start, analysis)
+    # One query for the cycle: from a few days before the checkpoint (to bridge
+    # driver gaps) or two weeks before the analysis (for the outlook), whichever is earlier.
+    frame = station_readings(engine, config, wb, min(start - dt.timedelta(days=3), analysis - dt.timedelta(days=14)),
+                             analysis)
+    series = StationSeries(frame)
+    drivers = observed_drivers(series, config, wb, start, analysis)
     horizon = wb.alerts.horizon_days
-    scenarios = forecast_drivers(engine, config, wb, analysis, horizon, temperature_offsets_C=DRIVER_SCENARIOS_C)
+    weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
+               if wb.weather_station else pd.DataFrame())
+    scenarios = forecast_drivers(series, weather, config, wb, analysis, horizon,
+                                 temperature_offsets_C=DRIVER_SCENARIOS_C)
     return CycleInputs(
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
         seed=config.filter.seed + sum(map(ord, wb.id)),
-        observations=to_observations(frame, config, wb), drivers=drivers, forecast_drivers=scenarios,
+        observations=to_observations(observations_frame(frame, config, wb, start), config, wb),
+        drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins))
 

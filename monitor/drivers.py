@@ -19,11 +19,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from sqlalchemy.engine import Engine
 
 from assimilation.spec import Drivers
 from monitor.config import Config, WaterBodyConfig
-from monitor.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import to_epoch_days
 
 HOUR = pd.Timedelta(hours=1)
@@ -57,75 +55,94 @@ def driver_sources(config: Config, wb: WaterBodyConfig) -> DriverSources:
     return DriverSources(tuple(temps), wb.weather_station, tuple(i.gauge for i in wb.inflows))
 
 
-def _hourly(frame: pd.DataFrame, station: str | None, variable: str, index: pd.DatetimeIndex,
-            fallback: float) -> np.ndarray:
-    """One station's variable on an hourly index: hourly means, interpolated, ends held."""
-    if station is None or frame.empty:
-        return np.full(len(index), fallback)
-    sel = frame[(frame.station_id == station) & (frame.variable == variable)]
-    if sel.empty:
-        return np.full(len(index), fallback)
-    series = sel.set_index("time_utc")["value"].resample("1h").mean()
-    series = series.reindex(series.index.union(index)).interpolate(method="time", limit_direction="both")
-    return series.reindex(index).to_numpy(dtype=float)
+class StationSeries:
+    """QC-passed readings of a water body's stations, split once by (station, variable)."""
+
+    def __init__(self, frame: pd.DataFrame):
+        self._series: dict[tuple[str, str], pd.Series] = {}
+        if not frame.empty:
+            passed = frame[frame.qc_flag <= 1]
+            for key, group in passed.groupby(["station_id", "variable"], sort=False):
+                self._series[key] = group.set_index("time_utc")["value"].sort_index()
+        self._daily: dict[tuple[str, str], pd.Series] = {}
+
+    def get(self, station: str | None, variable: str) -> pd.Series:
+        if station is None:
+            return pd.Series(dtype=float)
+        return self._series.get((station, variable), pd.Series(dtype=float))
+
+    def daily_mean(self, station: str | None, variable: str) -> pd.Series:
+        key = (station, variable)
+        if key not in self._daily:
+            s = self.get(station, variable)
+            self._daily[key] = s.resample("1D").mean().dropna() if len(s) else s
+        return self._daily[key]
+
+    def hourly(self, station: str | None, variable: str, index: pd.DatetimeIndex, fallback: float) -> np.ndarray:
+        """One station's variable on an hourly index: hourly means, interpolated, ends held."""
+        s = self.get(station, variable)
+        if s.empty:
+            return np.full(len(index), fallback)
+        s = s.resample("1h").mean()
+        s = s.reindex(s.index.union(index)).interpolate(method="time", limit_direction="both")
+        return s.reindex(index).to_numpy(dtype=float)
 
 
-def observed_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
-                     end: dt.datetime, *, lookback: dt.timedelta = dt.timedelta(days=3)) -> Drivers:
-    """Hourly drivers from ``start`` to ``end`` (aware UTC) from QC-passed readings."""
+def driver_stations(config: Config, wb: WaterBodyConfig) -> list[str]:
+    src = driver_sources(config, wb)
+    return [s for s in (*src.temperature_stations, src.weather_station, *src.gauges) if s]
+
+
+def observed_drivers(series: StationSeries, config: Config, wb: WaterBodyConfig, start: dt.datetime,
+                     end: dt.datetime) -> Drivers:
+    """Hourly drivers from ``start`` to ``end`` (aware UTC) from QC-passed readings.
+
+    ``series`` should hold a few days before ``start`` too, so gaps at the
+    start are bridged.
+    """
     src = driver_sources(config, wb)
     index = pd.date_range(start, end, freq="1h")
     if index[-1] < pd.Timestamp(end):
         index = index.append(pd.DatetimeIndex([pd.Timestamp(end)]))
-    stations = [s for s in (*src.temperature_stations, src.weather_station, *src.gauges) if s]
-    frame = readings_frame(engine, stations=stations,
-                           variables=["water_temperature", "shortwave_radiation", "discharge", "nitrate", "srp"],
-                           start=start - lookback, end=end, max_flag=1)
-    temps = np.column_stack([_hourly(frame, s, "water_temperature", index, FALLBACK["water_temperature"])
+    temps = np.column_stack([series.hourly(s, "water_temperature", index, FALLBACK["water_temperature"])
                              for s in src.temperature_stations])
-    light = _hourly(frame, src.weather_station, "shortwave_radiation", index, FALLBACK["shortwave_radiation"])
-    q, n, p = _inflow_columns(frame, src.gauges, index)
+    light = series.hourly(src.weather_station, "shortwave_radiation", index, FALLBACK["shortwave_radiation"])
+    cols = {v: [np.clip(series.hourly(g, v, index, FALLBACK[v]), 0.0, None) for g in src.gauges]
+            for v in ("discharge", "nitrate", "srp")}
+    q, n, p = (np.column_stack(cols[v]) if cols[v] else np.zeros((len(index), 0))
+               for v in ("discharge", "nitrate", "srp"))
     return Drivers(time_d=np.asarray(to_epoch_days(index)), water_temperature_C=temps,
                    shortwave_W_m2=np.clip(light, 0.0, None), inflow_m3_s=q,
                    inflow_nitrogen_ugL=n, inflow_phosphorus_ugL=p)
 
 
-def _inflow_columns(frame, gauges, index):
-    cols = {v: [] for v in ("discharge", "nitrate", "srp")}
-    for g in gauges:
-        for v in cols:
-            cols[v].append(np.clip(_hourly(frame, g, v, index, FALLBACK[v]), 0.0, None))
-    shape = (len(index), 0)
-    return tuple(np.column_stack(cols[v]) if cols[v] else np.zeros(shape) for v in ("discharge", "nitrate", "srp"))
-
-
-def forecast_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-                     horizon_days: int, *, temperature_offsets_C: tuple[float, ...] = (0.0,)) -> list[Drivers]:
+def forecast_drivers(series: StationSeries, weather_forecast: pd.DataFrame, config: Config, wb: WaterBodyConfig,
+                     analysis: dt.datetime, horizon_days: int, *,
+                     temperature_offsets_C: tuple[float, ...] = (0.0,)) -> list[Drivers]:
     """Hourly drivers from ``analysis`` to ``analysis + horizon_days``, one per scenario.
 
-    Each entry of ``temperature_offsets_C`` shifts the air-temperature outlook
-    (and so the water temperature) for one driver scenario of the forecast
-    ensemble [°C].
+    ``series`` holds the last two weeks of readings; ``weather_forecast`` the
+    newest forecast issued at or before ``analysis`` (columns variable,
+    valid_utc, value; may be empty). Each entry of ``temperature_offsets_C``
+    shifts the air-temperature outlook (and so the water temperature) for
+    one driver scenario of the forecast ensemble [°C].
     """
     src = driver_sources(config, wb)
-    end = analysis + dt.timedelta(days=horizon_days)
-    index = pd.date_range(analysis, end, freq="1h")
-    past = readings_frame(engine, stations=[s for s in (*src.temperature_stations, src.weather_station, *src.gauges) if s],
-                          variables=["water_temperature", "shortwave_radiation", "air_temperature",
-                                     "discharge", "nitrate", "srp"],
-                          start=analysis - dt.timedelta(days=14), end=analysis, max_flag=1)
-    weather = _weather_outlook(engine, past, src.weather_station, analysis, index)
+    index = pd.date_range(analysis, analysis + dt.timedelta(days=horizon_days), freq="1h")
+    weather = _weather_outlook(series, weather_forecast, src.weather_station, index)
     light = np.clip(weather["shortwave_radiation"], 0.0, None)
-    past_air = _daily_mean(past, src.weather_station, "air_temperature")
+    past_air = series.daily_mean(src.weather_station, "air_temperature")
     start_temps, offsets, taus = [], [], []
     for basin, st in zip(wb.basins, src.temperature_stations):
-        water = _daily_mean(past, st, "water_temperature")
+        water = series.daily_mean(st, "water_temperature")
         start_temps.append(float(water.iloc[-1]) if len(water) else FALLBACK["water_temperature"])
         both = pd.concat([water, past_air], axis=1, keys=["w", "a"]).dropna().tail(7)
         offsets.append(float((both.w - both.a).mean()) if len(both) else 0.0)
         # relaxation time ≈ 1.5 d per 4 m of depth (common practice)
         taus.append(1.5 * max(basin.mean_depth_m, 1.0) / 4.0)
-    q, n, p = _inflow_persistence(past, src.gauges, len(index))
+    persist = {v: [max(float(d.iloc[-1]), 0.0) if len(d := series.daily_mean(g, v)) else FALLBACK[v]
+                   for g in src.gauges] for v in ("discharge", "nitrate", "srp")}
+    q, n, p = (np.tile(np.asarray(persist[v], dtype=float), (len(index), 1)) for v in ("discharge", "nitrate", "srp"))
     out = []
     for shift in temperature_offsets_C:
         air_daily = pd.Series(weather["air_temperature"] + shift, index=index).rolling(24, min_periods=1).mean()
@@ -146,19 +163,9 @@ def _relax(start: np.ndarray, equilibrium: np.ndarray, tau_d: np.ndarray, dt_d: 
     return temps
 
 
-def _daily_mean(frame: pd.DataFrame, station: str | None, variable: str) -> pd.Series:
-    if station is None or frame.empty:
-        return pd.Series(dtype=float)
-    sel = frame[(frame.station_id == station) & (frame.variable == variable)]
-    if sel.empty:
-        return pd.Series(dtype=float)
-    return sel.set_index("time_utc")["value"].resample("1D").mean().dropna()
-
-
-def _weather_outlook(engine, past, station, analysis, index) -> dict[str, np.ndarray]:
+def _weather_outlook(series: StationSeries, fc: pd.DataFrame, station, index) -> dict[str, np.ndarray]:
     """Air temperature and shortwave over ``index``: the issued forecast, else a persistence climatology."""
     out = {}
-    fc = latest_driver_forecast(engine, station, issued_at_or_before=analysis) if station else pd.DataFrame()
     for variable in ("air_temperature", "shortwave_radiation"):
         sel = fc[fc.variable == variable] if not fc.empty else fc
         if not sel.empty and sel.valid_utc.max() >= index[-1] - HOUR:
@@ -167,20 +174,10 @@ def _weather_outlook(engine, past, station, analysis, index) -> dict[str, np.nda
             s = s.reindex(s.index.union(index)).interpolate(method="time", limit_direction="both")
             out[variable] = s.reindex(index).to_numpy(dtype=float)
             continue
-        hist = past[(past.station_id == station) & (past.variable == variable)] if station else past.iloc[0:0]
+        hist = series.get(station, variable)
         if hist.empty:
             out[variable] = np.full(len(index), FALLBACK[variable])
             continue
-        by_hour = hist.set_index("time_utc")["value"].groupby(lambda t: t.hour).mean()
+        by_hour = hist.groupby(hist.index.hour).mean()
         out[variable] = by_hour.reindex(range(24)).interpolate(limit_direction="both").to_numpy()[index.hour]
     return out
-
-
-def _inflow_persistence(past, gauges, n_times):
-    cols = {v: [] for v in ("discharge", "nitrate", "srp")}
-    for g in gauges:
-        for v in cols:
-            s = _daily_mean(past, g, v)
-            value = float(s.iloc[-1]) if len(s) else FALLBACK[v]
-            cols[v].append(np.full(n_times, max(value, 0.0)))
-    return tuple(np.column_stack(cols[v]) if cols[v] else np.zeros((n_times, 0)) for v in ("discharge", "nitrate", "srp"))
