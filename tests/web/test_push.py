@@ -1,0 +1,125 @@
+"""The HTTP push endpoint: token check, JSON and CSV batches, counts in the answer."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from flask import Flask
+
+from monitor.db import open_store
+from monitor.readings import readings_frame, rejected_rows_frame
+from tests.monitor.conftest import NOW, fernwater
+from web.push import MAX_BODY_BYTES, push_api
+
+TOKEN = "s3cret-token-for-tests"
+URL = "/api/v1/push/utility"
+
+
+@pytest.fixture
+def push_app(tmp_path):
+    config = fernwater(tmp_path)
+    app = Flask(__name__)
+    engine = open_store(config.service.database_url)
+    app.extensions["bloomline"] = {"config": config, "engine": engine, "clock": lambda: NOW}
+    app.register_blueprint(push_api)
+    yield app
+    engine.dispose()
+
+
+@pytest.fixture
+def push_client(push_app):
+    return push_app.test_client()
+
+
+def auth(token=TOKEN):
+    return {"Authorization": f"Bearer {token}"}
+
+
+RECORDS = [
+    {"time": "2026-07-01T00:00:00Z", "station": "FW-1", "variable": "water_temperature", "value": 20.5, "unit": "degC"},
+    {"time": "2026-07-01T00:15:00Z", "station": "FW-1", "variable": "water_temperature", "value": 20.6, "unit": "degC"},
+    {"time": "2026-07-01T00:30:00Z", "station": "FW-1", "variable": "water_temperature", "value": "hot", "unit": "degC"},
+]
+
+
+def test_json_batch_is_stored_and_answered_with_its_counts(push_client, push_app):
+    resp = push_client.post(URL, json={"readings": RECORDS}, headers=auth())
+    assert resp.status_code == 200
+    body = resp.get_json()
+    assert {k: body[k] for k in ("status", "received", "accepted", "rejected", "duplicate")} == {
+        "status": "partial", "received": 3, "accepted": 2, "rejected": 1, "duplicate": 0}
+    engine = push_app.extensions["bloomline"]["engine"]
+    assert readings_frame(engine)["value"].tolist() == [20.5, 20.6]
+    assert "not a finite decimal number" in rejected_rows_frame(engine)["reason"].iloc[0]
+    again = push_client.post(URL, json=RECORDS, headers=auth()).get_json()
+    assert (again["accepted"], again["duplicate"]) == (0, 2)
+
+
+def test_csv_batch_by_content_type(push_client):
+    csv = ("time,station,variable,value,unit\n"
+           "2026-07-01T01:00:00Z,FW-1,water_temperature,70.0,degF\n").encode()
+    resp = push_client.post(URL, data=csv, content_type="text/csv", headers=auth())
+    assert resp.status_code == 200 and resp.get_json()["accepted"] == 1
+
+
+def test_wrong_or_missing_token_is_401(push_client):
+    assert push_client.post(URL, json=RECORDS, headers=auth("wrong")).status_code == 401
+    resp = push_client.post(URL, json=RECORDS)
+    assert resp.status_code == 401 and resp.headers["WWW-Authenticate"].startswith("Bearer")
+    assert "token" in resp.get_json()["error"]["message"]
+    assert push_client.post(URL, json=RECORDS, headers={"X-Bloomline-Token": TOKEN}).status_code == 200
+
+
+def test_token_is_compared_in_constant_time(monkeypatch, push_client):
+    import hmac
+
+    import web.push as push_module
+
+    calls = []
+    real = hmac.compare_digest
+
+    def spy(a, b):
+        calls.append((a, b))
+        return real(a, b)
+
+    monkeypatch.setattr(push_module.hmac, "compare_digest", spy)
+    push_client.post(URL, json=RECORDS, headers=auth("nope"))
+    assert calls == [(b"nope", TOKEN.encode())]
+
+
+def test_unknown_feed_is_404_and_other_kinds_are_not_push_targets(push_client):
+    assert push_client.post("/api/v1/push/nope", json=RECORDS, headers=auth()).status_code == 404
+    assert push_client.post("/api/v1/push/buoys", json=RECORDS, headers=auth()).status_code == 404
+
+
+def test_every_row_rejected_is_422(push_client):
+    resp = push_client.post(URL, json=[{"time": "never", "station": "FW-1", "variable": "water_temperature",
+                                         "value": 1, "unit": "degC"}], headers=auth())
+    assert resp.status_code == 422 and resp.get_json()["status"] == "rejected"
+
+
+def test_bad_requests_get_json_errors(push_client):
+    assert push_client.post(URL, data=b"x", content_type="application/xml", headers=auth()).status_code == 415
+    assert push_client.post(URL, data=b"  ", content_type="application/json", headers=auth()).status_code == 400
+    big = b"[" + b" " * (MAX_BODY_BYTES + 1) + b"]"
+    resp = push_client.post(URL, data=big, content_type="application/json", headers=auth())
+    assert resp.status_code == 413 and "at most" in resp.get_json()["error"]["message"]
+
+
+def test_injection_strings_are_only_data(push_client, push_app):
+    hostile = [{**RECORDS[0], "station": "FW-1'; DROP TABLE readings; --"}]
+    resp = push_client.post(URL, data=json.dumps(hostile), content_type="application/json", headers=auth())
+    assert resp.status_code == 422
+    engine = push_app.extensions["bloomline"]["engine"]
+    assert readings_frame(engine).empty
+    assert "unknown station" in rejected_rows_frame(engine)["reason"].iloc[0]
+
+
+def test_the_app_factory_serves_the_push_endpoint(tmp_path):
+    from web import create_app
+
+    app = create_app(fernwater(tmp_path), clock=lambda: NOW)
+    resp = app.test_client().post(URL, json=RECORDS[:1], headers=auth())
+    assert resp.status_code == 200 and resp.get_json()["accepted"] == 1
+    app.extensions["bloomline"]["engine"].dispose()
