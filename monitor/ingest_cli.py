@@ -8,7 +8,6 @@ with status 1 when a batch failed or rejected every row.
 
 from __future__ import annotations
 
-import os
 from pathlib import Path
 
 import click
@@ -25,14 +24,14 @@ def _files(path: Path, pattern: str) -> list[Path]:
 @click.command("ingest")
 @click.argument("target")
 @click.option("--feed", "feed_name", required=True, help="Name of the [[feeds]] entry that says how to read TARGET.")
-@click.option("--config", "config_path", type=click.Path(dir_okay=False), default=None,
-              help="The Bloomline TOML (default: $BLOOMLINE_CONFIG or ./bloomline.toml).")
+@click.option("--config", "config_path", envvar="BLOOMLINE_CONFIG", type=click.Path(dir_okay=False),
+              default="bloomline.toml", show_default=True, help="The Bloomline TOML (or $BLOOMLINE_CONFIG).")
 def ingest(target: str, feed_name: str, config_path: str | None) -> None:
     """Load PATH (a file or folder) or URL into the store as the feed NAME describes."""
     from monitor.db import open_store
     from monitor.ingest import BatchResult, ingest_bytes, ingest_path
 
-    path = config_path or os.environ.get("BLOOMLINE_CONFIG") or "bloomline.toml"
+    path = config_path
     try:
         config = load_config(path)
         feed = config.feed(feed_name)

@@ -204,15 +204,17 @@ def rate_of_change(values: np.ndarray, times_h: np.ndarray, threshold_per_h=None
     return flags
 
 
-def flat_line(values: np.ndarray, times_h: np.ndarray, tolerance=None, suspect_h=None, fail_h=None) -> np.ndarray:
+def flat_line(values: np.ndarray, times_h: np.ndarray, tolerance=None, suspect_h=None, fail_h=None,
+              max_gap_h: float = MAX_NEIGHBOUR_GAP_H) -> np.ndarray:
     """QARTOD flat line test (U.S. IOOS 2018, DO manual test 10).
 
     A point is suspect (3) if every value in the trailing ``suspect_h``
     hours (including the point at exactly ``t − suspect_h``) lies within
     ``tolerance`` of it, and fails (4) likewise over ``fail_h``. A point
-    whose series does not reach back the whole duration, or whose window
-    holds fewer than three values, is not evaluated for that level; with
-    neither level evaluable it gets 2.
+    whose series does not reach back the whole duration, whose window holds
+    fewer than three values, or whose window has a gap longer than
+    ``max_gap_h`` [h] (an outage is not a flat line), is not evaluated for
+    that level; with neither level evaluable it gets 2.
     """
     v = np.asarray(values, dtype=float)
     t = np.asarray(times_h, dtype=float)
@@ -221,13 +223,23 @@ def flat_line(values: np.ndarray, times_h: np.ndarray, tolerance=None, suspect_h
         return flags
     evaluated = np.zeros(v.shape, dtype=bool)
     result = np.full(v.shape, PASS, dtype=np.uint8)
+    gaps = np.diff(t)
+    idx = np.arange(v.size)
     for duration, level in ((suspect_h, SUSPECT), (fail_h, FAIL)):
         if duration is None:
             continue
         start = np.searchsorted(t, t - duration - 1e-9, side="left")
-        count = np.arange(v.size) - start + 1
+        count = idx - start + 1
         has_history = t[0] <= t - duration + 1e-9
         ok = has_history & (count >= 3)
+        # the window must be covered by data: no gap longer than max_gap_h from the last point
+        # at or before t - duration up to the present point (an outage is not a flat line)
+        if gaps.size:
+            first = np.where(t[start] > t - duration + 1e-9, start - 1, start).clip(0)
+            g_start = np.minimum(first, np.maximum(idx - 1, 0))[1:]
+            g_max, _ = _window_max_min(gaps, g_start)
+            covered = np.concatenate([[False], g_max <= max_gap_h])
+            ok &= covered
         hi, lo = _window_max_min(v, start)
         flat = ok & (hi - v < tolerance) & (v - lo < tolerance)
         evaluated |= ok

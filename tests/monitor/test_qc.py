@@ -141,3 +141,10 @@ def test_qc_of_a_split_series_with_context_equals_qc_of_the_whole():
         keep = t[start:] >= t[cut] - ctx
         np.testing.assert_array_equal(part_flag[keep], whole_flag[start:][keep])
         np.testing.assert_array_equal(part_digits[keep], whole_digits[start:][keep])
+
+
+def test_flat_line_is_not_evaluated_across_an_outage():
+    # three equal values right after a 20 h outage are not a 12 h flat line
+    hours = np.array([0.0, 0.25, 0.5, 20.0, 20.25, 20.5])
+    values = np.array([1.0, 2.0, 3.0, 5.0, 5.0, 5.0])
+    assert qc.flat_line(values, hours, 0.01, 6.0, 12.0).tolist() == [2, 2, 2, 2, 2, 2]
