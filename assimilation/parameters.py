@@ -26,7 +26,7 @@ Choice of the cyanobacteria advantage (documented here once)
 Warm, calm, nitrogen-poor water favours cyanobacteria in Bloomline through
 the combination of:
 
-* a steeper temperature response (theta 1.10 against Eppley's 1.066 for the
+* a steeper temperature response (theta 1.10 against Eppley's 1.065 for the
   green algae) from a lower rate at 20 °C (1.1 against 2.0 /d): the gap in
   maximum growth narrows from 2.3× at 12 °C to 1.5× at 27 °C;
 * buoyancy: no settling loss, while the green algae settle at 0.15 m/d,
@@ -87,7 +87,7 @@ THETA_EPPLEY = 10.0 ** 0.0275
 GREEN_ALGAE = dict(
     name="green_algae",
     mu_max_20_per_d=2.0,          # 1–3 /d in [1] (from memory)
-    theta_growth=THETA_EPPLEY,    # Eppley (1972) [3]: 1.066
+    theta_growth=THETA_EPPLEY,    # Eppley (1972) [3]: 10**0.0275 = 1.065
     k_n_ugL=15.0,                 # K_N 5–25 µg N/L in [1] (from memory)
     k_p_ugL=2.0,                  # K_P 1–5 µg P/L in [1] (from memory)
     light_saturation_W_m2=80.0,   # PAR, Steele optimum [4]; from memory
