@@ -7,12 +7,15 @@ with ``assimilation.integrate.advance`` (dt = 1 h, all members in one call).
 
 The reference is scipy's ``solve_ivp`` (LSODA) on the same equations
 (``assimilation.model.rhs``), one member at a time, in the same process, at
-a tolerance (rtol = atol = 1e-4 by default) whose own error against a
-tight solve (rtol 1e-8) is of the size of Bloomline's hourly error.
+a tolerance (rtol = atol = 3e-4 by default) whose own error against a
+tight solve (LSODA, rtol 1e-8) is no larger than Bloomline's hourly error:
+measured on member 0 over the 365 days with the metric below, LSODA at
+3e-4 is off by 1.0 %, Bloomline at dt = 1 h by 1.75 %, LSODA at 1e-3 by
+3.3 % (at about the same cost as 3e-4).
 
 ``max_rel_diff`` is max |X − X_ref| / (|X_ref| + 0.1 µg/L) over the daily
 states of the members solved by the reference. Timing the reference for all
-100 members takes about 25 CPU minutes; ``--reference-members K`` times K
+100 members takes about 17 CPU minutes; ``--reference-members K`` times K
 members and scales the time by 100 / K (then ``reference_members`` says K
 and ``reference_extrapolated`` is true). Times are process CPU seconds, so a
 busy shared machine disturbs the ratio less.
@@ -50,7 +53,7 @@ def main(argv=None) -> dict:
     parser.add_argument("--days", type=float, default=365.0)
     parser.add_argument("--reference-members", type=int, default=None,
                         help="members solved by solve_ivp (default: all); the time is scaled to all members")
-    parser.add_argument("--rtol", type=float, default=1e-4, help="solve_ivp rtol = atol [µg/L]")
+    parser.add_argument("--rtol", type=float, default=3e-4, help="solve_ivp rtol = atol [µg/L]")
     args = parser.parse_args(argv)
     n_ref = args.members if args.reference_members is None else min(args.reference_members, args.members)
 
