@@ -204,7 +204,11 @@ def _run(E, spec, drivers, t0_d, save_times, dt_d, params):
     layout = StateLayout(spec)
     E = _check_ensemble(E, layout)
     drivers.check_against(spec)
-    if not (isinstance(dt_d, (int, float)) and dt_d > 0 and math.isfinite(dt_d)):
+    try:
+        dt_d = float(dt_d)
+    except (TypeError, ValueError):
+        dt_d = float("nan")
+    if not (dt_d > 0 and math.isfinite(dt_d)):
         raise ValueError(f"dt_d must be a positive number of days, got {dt_d!r}")
     save_times = np.atleast_1d(np.asarray(save_times, dtype=float))
     if save_times.ndim != 1 or save_times.size == 0:

@@ -120,12 +120,6 @@ class Forcing:
     inflow_m3_s: np.ndarray
     inflow_concentration_ugL: np.ndarray
 
-    def at(self, k: int) -> "Forcing":
-        """The forcing at the k-th time, keeping a leading axis of length 1."""
-        s = slice(k, k + 1)
-        return Forcing(self.water_temperature_C[s], self.par_W_m2[s], self.inflow_m3_s[s],
-                       self.inflow_concentration_ugL[s])
-
 
 def check_time_range(drivers: Drivers, t_first: float, t_last: float) -> None:
     """Raise ValueError unless [t_first, t_last] lies within the driver times."""

@@ -139,3 +139,10 @@ def test_total_phosphorus_adds_algal_phosphorus_by_stoichiometry():
     # Redfield by mass 41:7.2:1 (Redfield 1958) with carbon:chlorophyll 50 → 8.78 µg N and 1.22 µg P per µg chl-a
     assert spec.nitrogen_to_chlorophyll == pytest.approx(50 * 7.2 / 41)
     assert spec.phosphorus_to_chlorophyll == pytest.approx(50 / 41)
+
+
+def test_advance_rejects_a_non_positive_step():
+    spec = three_basin_spec()
+    with pytest.raises(ValueError, match="dt_d must be a positive number of days"):
+        integrate.advance(initial_ensemble(spec, 2), spec, summer_drivers(days=2), JUNE_FIRST_2026,
+                          JUNE_FIRST_2026 + 1.0, dt_d=0.0)
