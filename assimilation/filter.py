@@ -69,7 +69,10 @@ class FilterConfig:
     parameter_sd_floor [log units, i.e. relative sd]: least spread kept in
     each augmented parameter and gain. parameter_relaxation [-]: RTPS alpha
     for the parameters and gains, which slows their learning but keeps them
-    from collapsing onto a wrong value early. window_d [d]: aggregation window of
+    from collapsing onto a wrong value early. parameter_bounds_factor [-]:
+    each member's parameters stay within the spec's value times or divided
+    by this factor, its gains within [1/factor, factor] (a guard against
+    drift in a long season). window_d [d]: aggregation window of
     high-frequency readings. representativeness_fraction [-]: see
     :func:`observe.aggregate_windows`. dt_d [d]: model step.
     initial_state_log_sd, parameter_log_sd, gain_log_sd [log units]: spread
@@ -89,6 +92,7 @@ class FilterConfig:
     n_sensors: int = 0
     parameter_sd_floor: float = 0.03
     parameter_relaxation: float = 0.5
+    parameter_bounds_factor: float = 4.0
     window_d: float = 1.0
     representativeness_fraction: float = observe.REPRESENTATIVENESS_FRACTION
     dt_d: float = 1.0 / 24.0
@@ -118,6 +122,8 @@ class FilterConfig:
                     "model_error_log_sd_per_d", "representativeness_fraction"):
             if not getattr(self, key) >= 0:
                 raise ValueError(f"FilterConfig.{key} must be >= 0, got {getattr(self, key)!r}")
+        if not self.parameter_bounds_factor > 1.0:
+            raise ValueError(f"FilterConfig.parameter_bounds_factor must be > 1, got {self.parameter_bounds_factor!r}")
         for key in ("window_d", "dt_d", "state_floor_ugL"):
             if not getattr(self, key) > 0:
                 raise ValueError(f"FilterConfig.{key} must be > 0, got {getattr(self, key)!r}")
@@ -312,6 +318,13 @@ def assimilate(checkpoint: Checkpoint, observations: Observations, spec: ModelSp
     G = spec.n_groups
     floor = cfg.state_floor_ugL
 
+    # Bounds of the augmented parameters in log space: the spec's value (1 for
+    # a gain) times or divided by cfg.parameter_bounds_factor.
+    log_centre = np.zeros(len(checkpoint.names))
+    if n_param:
+        log_centre[s_param] = np.log(_spec_parameters(spec))
+    log_span = math.log(cfg.parameter_bounds_factor)
+
     E = checkpoint.ensemble.copy()
     t = t0
     stops = list(np.unique(when)) + ([t_end] if (len(when) == 0 or when.max() < t_end) else [])
@@ -346,7 +359,7 @@ def assimilate(checkpoint: Checkpoint, observations: Observations, spec: ModelSp
         R = batch.error_sd**2
         rho, rho_obs = _taper(cfg, spec, layout, batch, n_param, n_gain)
         try:
-            with np.errstate(all="raise"):
+            with np.errstate(over="raise", invalid="raise", divide="raise", under="ignore"):
                 Za = enkf.analysis(Z, HE, batch.value, R, method=cfg.method, rng=rng, rho=rho, rho_obs=rho_obs)
                 Za[:, s_state] = inflation.relax_to_prior_spread(Z[:, s_state], Za[:, s_state],
                                                                   cfg.relaxation_to_prior_spread)
@@ -355,6 +368,7 @@ def assimilate(checkpoint: Checkpoint, observations: Observations, spec: ModelSp
                     Za[:, cols] = inflation.relax_to_prior_spread(Z[:, cols], Za[:, cols],
                                                                   cfg.parameter_relaxation)
                     Za = inflation.floor_spread(Za, cfg.parameter_sd_floor, columns=cols)
+                    Za[:, cols] = np.clip(Za[:, cols], log_centre[cols] - log_span, log_centre[cols] + log_span)
                 Ea = transform.from_log(Za)
             ok = bool(np.all(np.isfinite(Ea)))
         except (FloatingPointError, np.linalg.LinAlgError) as exc:

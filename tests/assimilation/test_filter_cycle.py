@@ -94,3 +94,14 @@ def test_model_failure_is_reported_as_failed_status(twin):
     result = bf.assimilate(ckpt, Observations.empty(), twin.spec, twin.drivers, cfg, T0_D + 400)
     assert result.status == "failed"
     assert result.checkpoint is ckpt
+
+
+def test_parameters_stay_within_their_bounds(twin):
+    # A guard against drift: a parameter far outside the bound after an
+    # analysis is pulled back to the spec's value times the factor.
+    cfg, ckpt = _start(twin, parameter_bounds_factor=1.5)
+    j = ckpt.names.index("mu_max_20_per_d:cyanobacteria")
+    ckpt.ensemble[:, j] *= 5.0
+    result = bf.assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + 1)
+    mu = bf.split(result.checkpoint, twin.spec)[1]["mu_max_20_per_d"][:, 1]
+    assert np.all(mu <= 1.5 * twin.spec.groups[1].mu_max_20_per_d * (1 + 1e-12))
