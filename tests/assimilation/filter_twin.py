@@ -22,10 +22,10 @@ CYANO = 1  # index of the cyanobacteria group in parameters.default_groups()
 #: 25 % above the spec's (the filter's prior mean), which the filter must learn.
 TRUE_GROWTH_FACTOR = 1.25
 SENSOR_GAINS = (1.15, 0.9)  # true gains of the two fluorescence sensors
-#: Filter settings of a perfect-model twin: no multiplicative inflation (there
-#: is no model error to make up for) and a light relaxation to prior spread;
-#: everything else is FilterConfig's default.
-TWIN_SETTINGS = dict(inflation=1.0, relaxation_to_prior_spread=0.25)
+#: Filter settings of a perfect-model twin: no inflation of the model state
+#: (there is no model error to make up for); everything else, including the
+#: parameters' relaxation and spread floor, is FilterConfig's default.
+TWIN_SETTINGS = dict(inflation=1.0, relaxation_to_prior_spread=0.0)
 
 
 def spec():

@@ -17,7 +17,7 @@ def twin():
 
 
 def _start(twin, **kw):
-    cfg = bf.FilterConfig(members=16, n_sensors=2, **kw)
+    cfg = bf.FilterConfig(**{"members": 16, "n_sensors": 2, **kw})
     return cfg, bf.initial_checkpoint(twin.spec, cfg, T0_D, np.random.default_rng(1), initial_state=FIRST_GUESS)
 
 
@@ -105,3 +105,19 @@ def test_parameters_stay_within_their_bounds(twin):
     result = bf.assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + 1)
     mu = bf.split(result.checkpoint, twin.spec)[1]["mu_max_20_per_d"][:, 1]
     assert np.all(mu <= 1.5 * twin.spec.groups[1].mu_max_20_per_d * (1 + 1e-12))
+
+
+@pytest.mark.parametrize("hops, dam_pool_moves", [(0.5, False), (np.inf, True)])
+def test_localization_along_the_network_confines_an_observation(twin, hops, dam_pool_moves):
+    # Gaspari–Cohn with half-width 0.5 hop is zero from 1 hop on (Gaspari and
+    # Cohn 1999), so a reading in reed_arm cannot change dam_pool, two hops
+    # downstream; without localization it can.
+    cfg, ckpt = _start(twin, localization_hops=hops, estimate_parameters=False, n_sensors=0, inflation=1.0)
+    obs = Observations([T0_D + 1.0], ["chlorophyll_a"], [0], [-1], [9.0], [0.3])
+    with_obs = bf.assimilate(ckpt, obs, twin.spec, twin.drivers, cfg, T0_D + 1).checkpoint.ensemble
+    without = bf.assimilate(ckpt, Observations.empty(), twin.spec, twin.drivers, cfg, T0_D + 1).checkpoint.ensemble
+    layout = StateLayout(twin.spec)
+    arm = [layout.index_chlorophyll(0, g) for g in range(twin.spec.n_groups)]
+    dam = [layout.index_nitrogen(2)] + [layout.index_chlorophyll(2, g) for g in range(twin.spec.n_groups)]
+    assert not np.allclose(with_obs[:, arm], without[:, arm])
+    assert np.allclose(with_obs[:, dam], without[:, dam], rtol=1e-12, atol=0) != dam_pool_moves

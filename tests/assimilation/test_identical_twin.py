@@ -3,8 +3,8 @@ the truth is a model run with known parameters, the readings are the truth plus
 noise of known size, and the filter must track the truth and learn the parameters).
 
 The twin is a perfect-model experiment with white synthetic noise, so the
-filter is told so: no multiplicative inflation (there is no model error),
-a light relaxation to prior spread, and no representativeness error beyond
+filter is told so: no inflation of the model state (there is no model
+error), and no representativeness error beyond
 the window's own variability (the readings' only error is the white noise
 that a window mean averages down).
 """

@@ -11,8 +11,8 @@ by state augmentation in log space, start from the same prior distribution
 and analyse each day's windows at the same time.
 
 Bloomline: :func:`assimilation.filter.assimilate` with its defaults except the
-perfect-model settings of the twin (``TWIN_SETTINGS``: no multiplicative
-inflation, relaxation to prior spread 0.25); observation errors are the
+perfect-model settings of the twin (``TWIN_SETTINGS``: no inflation of the
+model state, as filterpy has none); observation errors are the
 defaults' (representativeness 10 %) for both filters.
 Reference: filterpy's ``EnsembleKalmanFilter`` (perturbed observations, no
 localization or inflation), whose ``fx`` advances one member at a time with
