@@ -30,6 +30,7 @@ import shutil
 import tempfile
 from collections import Counter
 from dataclasses import dataclass
+from itertools import repeat
 from pathlib import Path
 from typing import Callable, Iterable
 
@@ -237,27 +238,45 @@ def _same(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 def _dedupe_batch(parsed: Parsed, rejections: list[Rejection], keys: list[str]) -> tuple[pd.DataFrame, int]:
-    """Drop repeats inside the batch: equal values are duplicates, differing ones rejections."""
-    frame = pd.DataFrame({"station": parsed.station, "variable": parsed.variable, "t": parsed.time_ns,
-                          "value": parsed.value, "line": parsed.line})
-    if parsed.issued_ns is not None:
-        frame["issued"] = parsed.issued_ns
-    if frame.empty:
-        return frame, 0
-    frame = frame.sort_values(keys + ["line"], kind="stable").reset_index(drop=True)
-    rep = frame.duplicated(keys, keep="first").to_numpy()
-    if not rep.any():
-        return frame, 0
-    first_value = frame.groupby(keys, sort=False)["value"].transform("first").to_numpy()
-    first_line = frame.groupby(keys, sort=False)["line"].transform("first").to_numpy()
-    same = _same(frame["value"].to_numpy(), first_value)
-    conflict = rep & ~same
-    for i in np.nonzero(conflict)[0]:
-        rejections.append(Rejection(int(frame.at[i, "line"]), _raw(parsed, frame.at[i, "line"]),
-                                    f"{frame.at[i, 'variable']} at the same time as line {first_line[i]} "
-                                    f"with another value ({frame.at[i, 'value']!r} vs {first_value[i]!r})"))
-    duplicate = int((rep & same).sum())
-    return frame[~rep].reset_index(drop=True), duplicate
+    """Drop repeats inside the batch: equal values are duplicates, differing ones rejections.
+
+    Returns the remaining readings sorted by station, variable, (issue time,)
+    time, with an integer column ``series`` numbering the (station,
+    variable) series in that order, and the number of duplicates.
+    """
+    issued = "issued" in keys
+    n = parsed.value.size
+    st_codes, st_names = pd.factorize(parsed.station, sort=True)
+    var_codes, var_names = pd.factorize(parsed.variable, sort=True)
+    sort_keys = [parsed.line, parsed.time_ns] + ([parsed.issued_ns] if issued else []) + [var_codes, st_codes]
+    order = np.lexsort(sort_keys) if n else np.array([], dtype=np.int64)
+    st_c, var_c, t = st_codes[order], var_codes[order], parsed.time_ns[order]
+    value, line = parsed.value[order], parsed.line[order]
+    same_key = np.zeros(n, dtype=bool)
+    if n > 1:
+        same_key[1:] = (st_c[1:] == st_c[:-1]) & (var_c[1:] == var_c[:-1]) & (t[1:] == t[:-1])
+        if issued:
+            iss = parsed.issued_ns[order]
+            same_key[1:] &= iss[1:] == iss[:-1]
+    duplicate = 0
+    if same_key.any():
+        first = np.maximum.accumulate(np.where(same_key, 0, np.arange(n)))
+        equal = _same(value, value[first])
+        conflict = same_key & ~equal
+        for i in np.nonzero(conflict)[0]:
+            j = first[i]
+            rejections.append(Rejection(int(line[i]), _raw(parsed, line[i]),
+                                        f"{var_names[var_c[i]]} at the same time as line {line[j]} "
+                                        f"with another value ({value[i]!r} vs {value[j]!r})"))
+        duplicate = int((same_key & equal).sum())
+    keep = ~same_key
+    series = (st_c.astype(np.int64) * max(len(var_names), 1) + var_c)[keep]
+    frame = pd.DataFrame({"station": np.asarray(st_names, dtype=object)[st_c[keep]] if n else np.array([], dtype=object),
+                          "variable": np.asarray(var_names, dtype=object)[var_c[keep]] if n else np.array([], dtype=object),
+                          "t": t[keep], "value": value[keep], "line": line[keep], "series": series})
+    if issued:
+        frame["issued"] = parsed.issued_ns[order][keep]
+    return frame, duplicate
 
 
 def _raw(parsed: Parsed, line) -> str:
@@ -349,7 +368,13 @@ def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch
     out_t, out_station, out_variable, out_value, out_flag, out_tests = [], [], [], [], [], []
     fills = []  # (value, flag, tests, batch, id) for stored missing readings filled in
     lab_touched: dict[str, tuple[int, int]] = {}
-    for (station, variable), g in frame.groupby(["station", "variable"], sort=True):
+    series = frame["series"].to_numpy()
+    bounds = np.flatnonzero(np.diff(series)) + 1
+    for lo, hi in zip(np.concatenate([[0], bounds]), np.concatenate([bounds, [series.size]])):
+        if hi <= lo:
+            continue
+        g = frame.iloc[lo:hi]
+        station, variable = g["station"].iat[0], g["variable"].iat[0]
         settings = qc.settings_for(config, station, variable)
         margin = int(qc.context_hours(settings) * _NS_PER_H)
         t_new = g["t"].to_numpy()
@@ -417,10 +442,12 @@ def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch
     if out_t:
         t = np.concatenate(out_t)
         values = np.concatenate(out_value)
+        # SQLite stores a bound NaN as NULL; other drivers get None for a missing value
+        value_list = values.tolist() if d == "sqlite" else [None if v != v else v for v in values.tolist()]
         rows = list(zip(np.concatenate(out_station).tolist(), np.concatenate(out_variable).tolist(),
-                        db_times(t, d), [None if v != v else v for v in values.tolist()],
-                        np.concatenate(out_flag).astype(int).tolist(), np.concatenate(out_tests).tolist()))
-        inserted = _insert_readings(conn, rows, source, batch_id)
+                        db_times(t, d), value_list, np.concatenate(out_flag).astype(int).tolist(),
+                        np.concatenate(out_tests).tolist(), repeat(source), repeat(batch_id)))
+        inserted = _insert_readings(conn, rows)
         if inserted < len(rows):  # a concurrent batch stored some of them first
             duplicate += len(rows) - inserted
             accepted -= len(rows) - inserted
@@ -429,8 +456,8 @@ def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch
     return accepted, flagged, duplicate
 
 
-def _insert_readings(conn: Connection, rows: list[tuple], source: str, batch_id: int) -> int:
-    """Insert (station, variable, time, value, flag, tests) rows; return how many were new."""
+def _insert_readings(conn: Connection, rows: list[tuple]) -> int:
+    """Insert (station, variable, time, value, flag, tests, source, batch) rows; return how many were new."""
     ph = _ph(conn)
     sql = (f"INSERT INTO readings (station_id, variable, time_utc, value, qc_flag, qc_tests, source, batch_id) "
            f"VALUES ({ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}) "
@@ -438,7 +465,7 @@ def _insert_readings(conn: Connection, rows: list[tuple], source: str, batch_id:
     total = 0
     chunk = 50_000
     for k in range(0, len(rows), chunk):
-        part = [r + (source, batch_id) for r in rows[k:k + chunk]]
+        part = rows[k:k + chunk]
         cur = conn.exec_driver_sql(sql, part)
         total += cur.rowcount if cur.rowcount is not None and cur.rowcount >= 0 else len(part)
     return total

@@ -138,8 +138,8 @@ def _csv_table(text: str, rejected: list[Rejection], record_lines: list[int]) ->
         start = prev + 1
         raw_lines = lines[prev:reader.line_num]
         prev = reader.line_num
-        if not fields or all(not f.strip() for f in fields) and len(fields) <= 1:
-            continue  # a blank line is not a record
+        if not fields or (len(fields) == 1 and not fields[0].strip()):
+            continue  # a blank line is not a record (",,," is: an empty record, rejected below)
         if header is None:
             header = [f.strip() for f in fields]
             if header and header[0].startswith("\ufeff"):
@@ -268,9 +268,11 @@ def _numbers_fast(cells: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray
     general path.
     """
     cells = list(cells)
-    if not cells or not all(type(c) is str for c in cells):
+    try:
+        joined = "".join(cells)  # every cell a str (CSV fields; JSON scalars are turned into str)
+    except TypeError:
         return None
-    if not set("".join(cells)) <= _PLAIN_NUMBER_CHARS:
+    if not cells or not set(joined) <= _PLAIN_NUMBER_CHARS:
         return None
     arr = np.asarray(cells, dtype=object)
     missing = arr == ""
@@ -458,18 +460,17 @@ def _readings(table: _Table, feed, config, origin, now, result: Parsed) -> Parse
     row_ok = np.ones(n, dtype=bool)
     row_reason = np.full(n, None, dtype=object)
 
-    def fail(mask: np.ndarray, reasons) -> None:
+    def fail(mask: np.ndarray, reason) -> None:
+        """Reject the rows in ``mask`` not yet rejected; ``reason`` is a string or a function of the row."""
         new = mask & row_ok
-        if isinstance(reasons, str):
-            row_reason[new] = reasons
-        else:
-            row_reason[new] = np.asarray(reasons, dtype=object)[new]
+        for j in np.nonzero(new)[0]:
+            row_reason[j] = reason if isinstance(reason, str) else reason(j)
         row_ok[new] = False
 
     tcell = column(index["time"])
     t_ns, t_ok, t_code = parse_times(tcell, feed.time_format, feed.timezone)
     fmt_name = "ISO 8601" if feed.time_format == "iso" else repr(feed.time_format)
-    fail(~t_ok, [_time_reason(c, code, feed.timezone, fmt_name) for c, code in zip(tcell, t_code)])
+    fail(~t_ok, lambda j: _time_reason(tcell[j], t_code[j], feed.timezone, fmt_name))
     if feed.role == "readings" and now is not None:
         limit = pd.Timestamp(now).tz_convert("UTC").tz_localize(None) + FUTURE_TOLERANCE
         future = t_ok & (t_ns > limit.value)
@@ -478,7 +479,7 @@ def _readings(table: _Table, feed, config, origin, now, result: Parsed) -> Parse
     if "issued" in index:
         icell = column(index["issued"])
         issued_ns, i_ok, _ = parse_times(icell, feed.time_format, feed.timezone)
-        fail(~i_ok, [f"issue time {str(c)[:60]!r} does not match the time format {fmt_name}" for c in icell])
+        fail(~i_ok, lambda j: f"issue time {str(icell[j])[:60]!r} does not match the time format {fmt_name}")
 
     known = {st.id: st for st in getattr(config, "stations", ())} if config is not None else {}
     if "station" in index:
@@ -489,7 +490,7 @@ def _readings(table: _Table, feed, config, origin, now, result: Parsed) -> Parse
     if known:
         unknown = ~pd.Series(station).isin(list(known)).to_numpy()
         if unknown.any():
-            fail(unknown, [f"unknown station {str(s)[:60]!r}" for s in station])
+            fail(unknown, lambda j: f"unknown station {str(station[j])[:60]!r}")
     elif not all(station):
         fail(station == "", "no station")
 

@@ -66,7 +66,9 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
          .where(and_(*cond))
          .order_by(readings.c.time_utc, readings.c.station_id, readings.c.variable, readings.c.source))
     with engine.connect() as conn:
-        rows = conn.execute(q).fetchall()
+        # the raw driver rows: no column here needs SQLAlchemy's result processing (the time is
+        # read as text in SQLite and converted below, vectorised), and skipping it is 2× faster
+        rows = conn.execute(q).cursor.fetchall()
     if not rows:
         return pd.DataFrame({"station_id": pd.Series([], dtype=object), "variable": pd.Series([], dtype=object),
                              "time_utc": pd.Series([], dtype="datetime64[ns, UTC]"),

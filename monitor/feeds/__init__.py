@@ -6,7 +6,8 @@
 * :mod:`monitor.feeds.mqtt` — an MQTT subscription (paho-mqtt), one batch per message;
 * the HTTP push endpoint lives in :mod:`web.push`.
 
-:func:`poll_due` runs every pull-type feed that is due; the scheduler calls it.
+:func:`poll_due` runs every pull-type feed that is due (the scheduler calls it
+every few minutes); :func:`start_mqtt_feeds` starts the subscriptions once.
 """
 
 from __future__ import annotations
@@ -15,6 +16,7 @@ import datetime as dt
 
 from monitor.feeds.csv_folder import poll_folder
 from monitor.feeds.http_pull import PullState, pull_feed
+from monitor.feeds.mqtt import MqttFeed
 
 
 def poll_due(engine, config, *, states: dict[str, PullState], now: dt.datetime | None = None,
@@ -32,4 +34,18 @@ def poll_due(engine, config, *, states: dict[str, PullState], now: dt.datetime |
     return results
 
 
-__all__ = ["PullState", "poll_due", "poll_folder", "pull_feed"]
+def start_mqtt_feeds(engine, config, *, on_batch=None, timeout_s: float = 10.0) -> list[MqttFeed]:
+    """Start a subscription for every mqtt feed; stop each with ``.stop()`` at shutdown."""
+    started = []
+    try:
+        for feed in config.feeds:
+            if feed.kind == "mqtt":
+                started.append(MqttFeed(engine, config, feed, on_batch=on_batch).start(timeout_s))
+    except Exception:
+        for sub in started:
+            sub.stop()
+        raise
+    return started
+
+
+__all__ = ["MqttFeed", "PullState", "poll_due", "poll_folder", "pull_feed", "start_mqtt_feeds"]

@@ -10,9 +10,10 @@ second fresh database migrated the same way, same pragmas), in the same
 process.
 
 Prints one JSON line: readings, seconds, readings_per_s, ratio
-(bare_seconds / seconds), bare_seconds, and the counts.
+(bare_seconds / seconds), bare_seconds, and the counts. Each is the best
+of ``--repeat`` runs into fresh stores (the machine is shared).
 
-    python tests/benchmarks/bench_ingest.py [--days 365]
+    python tests/benchmarks/bench_ingest.py [--days 365] [--repeat 3]
 """
 
 from __future__ import annotations
@@ -65,7 +66,7 @@ def make_year(rng: np.random.Generator, days: int) -> pd.DataFrame:
 
 def config_for(tmp: Path, db: Path):
     return parse_config({
-        "service": {"database": f"sqlite:///{db}", "archive_dir": str(tmp / "archive")},
+        "service": {"database": f"sqlite:///{db}", "archive_dir": str(tmp / f"archive-{db.stem}")},
         "water_bodies": [{"id": "bench-lake", "use": "recreation",
                           "basins": [{"id": "main", "volume_m3": 1e6, "mean_depth_m": 3.0, "area_m2": 3e5}]}],
         "stations": [{"id": s, "kind": "buoy", "water_body": "bench-lake", "basin": "main",
@@ -115,6 +116,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--days", type=int, default=365)
     ap.add_argument("--seed", type=int, default=20250101)
+    ap.add_argument("--repeat", type=int, default=3, help="report the best of this many runs")
     args = ap.parse_args()
     rng = np.random.default_rng(args.seed)
     with tempfile.TemporaryDirectory() as td:
@@ -129,18 +131,20 @@ def main() -> None:
                 path = folder / f"{m}.csv"
                 part.to_csv(path, index=False)
                 files.append(path)
-        config = config_for(tmp, tmp / "bloomline.sqlite")
-        feed = config.feed("bench-buoys")
-        engine = open_store(config.service.database_url)
-        bare_db = tmp / "bare.sqlite"
-        open_store(f"sqlite:///{bare_db}").dispose()
         rows = bare_rows(frames)
-
-        t0 = time.perf_counter()
-        results = [ingest_path(engine, config, feed, f) for f in files]
-        seconds = time.perf_counter() - t0
-        engine.dispose()
-        bare_seconds = bare_insert(bare_db, rows)
+        best = best_bare = float("inf")
+        for k in range(args.repeat):  # best of n, each into fresh stores (machine shared with other work)
+            config = config_for(tmp, tmp / f"bloomline-{k}.sqlite")
+            feed = config.feed("bench-buoys")
+            engine = open_store(config.service.database_url)
+            bare_db = tmp / f"bare-{k}.sqlite"
+            open_store(f"sqlite:///{bare_db}").dispose()
+            t0 = time.perf_counter()
+            results = [ingest_path(engine, config, feed, f) for f in files]
+            best = min(best, time.perf_counter() - t0)
+            engine.dispose()
+            best_bare = min(best_bare, bare_insert(bare_db, rows))
+        seconds, bare_seconds = best, best_bare
 
         accepted = sum(r.accepted for r in results)
         readings = sum(r.received for r in results)
@@ -150,6 +154,7 @@ def main() -> None:
             "bare_seconds": round(bare_seconds, 3), "bare_rows": len(rows), "accepted": accepted,
             "flagged": sum(r.flagged for r in results), "rejected": sum(r.rejected for r in results),
             "failed_batches": sum(r.status == "failed" for r in results), "files": len(files),
+            "repeat": args.repeat,
         }))
 
 

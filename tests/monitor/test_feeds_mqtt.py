@@ -75,3 +75,23 @@ def test_start_raises_when_no_broker_listens(tmp_path, sqlite_engine):
     config = fernwater(tmp_path, feeds=[feed])
     with pytest.raises(ConnectionRefusedError, match="Connection refused"):
         MqttFeed(sqlite_engine, config, config.feed("nowhere")).start(timeout_s=1.0)
+
+
+def test_start_mqtt_feeds_subscribes_every_mqtt_feed(tmp_path, sqlite_engine, mqtt_address):
+    from monitor.feeds import start_mqtt_feeds
+
+    host, port = mqtt_address
+    prefix = f"bloomline-test/{uuid.uuid4().hex[:8]}"
+    feeds = [{"name": f"m{k}", "kind": "mqtt", "host": host, "port": port, "topic": f"{prefix}/{k}",
+              "format": "json", "layout": "long", "station": "FW-1"} for k in range(2)]
+    config = fernwater(tmp_path, feeds=feeds)
+    subs = start_mqtt_feeds(sqlite_engine, config)
+    try:
+        assert [s.feed.name for s in subs] == ["m0", "m1"] and all(s.subscribed.is_set() for s in subs)
+        record = {"time": "2026-07-01T00:00:00Z", "variable": "water_temperature", "value": 19.0, "unit": "degC"}
+        publish(host, port, f"{prefix}/1", [json.dumps(record)])
+        assert wait_for(lambda: len(subs[1].results) == 1)
+        assert subs[1].results[0].accepted == 1 and subs[0].results == []
+    finally:
+        for s in subs:
+            s.stop()
