@@ -11,9 +11,9 @@ takes up N and P in a fixed ratio) stay stoichiometric:
 * every process flux is multiplied by a weight c'/c* of the species it
   consumes (c' the new value, c* the predictor); growth, which consumes N
   and P, by q = (N'/N*)·(P'/P*);
-* losses of a group (mortality, settling, outflow) and the outflow of N or
-  P consume only that species: their weights make the update for that
-  species linear-implicit;
+* losses of a group (mortality, settling, outflow) and the outflow and
+  denitrification of N or the outflow of P consume only that species: their
+  weights make the update for that species linear-implicit;
 * q is the smaller root of one quadratic per (member, basin), the one that
   keeps N and P positive;
 * flow from basin k to basin j is one process: the loss in k and the gain
@@ -100,7 +100,11 @@ class _PatankarUpdate:
             self.NP = self.NP + np.stack([np.zeros_like(f.sediment_phosphorus), h * f.sediment_phosphorus], -1)
         beta = np.maximum(self.stoich * (uptake - ret1), 0.0)
         NP_star = Cstar[..., :2]
-        d = NP_star + h * outflux[..., :2]
+        # N and P consumed by their own processes (outflow, denitrification), weight c'/c*
+        own_loss = outflux[..., :2]
+        if np.ndim(f.denitrification):
+            own_loss = own_loss + np.stack([f.denitrification, np.zeros_like(f.denitrification)], -1)
+        d = NP_star + h * own_loss
         # a nutrient that growth does not consume (no growth, e.g. at night) drops out of q
         self.used = beta > 0
         self.beta = np.where(self.used, beta, 0.0)
@@ -123,7 +127,8 @@ class _PatankarUpdate:
 def _mean_fluxes(f0, f1):
     return model.ProcessFluxes(0.5 * (f0.growth + f1.growth), 0.5 * (f0.mortality + f1.mortality),
                                0.5 * (f0.settling + f1.settling),
-                               0.5 * (np.asarray(f0.sediment_phosphorus) + np.asarray(f1.sediment_phosphorus)))
+                               0.5 * (np.asarray(f0.sediment_phosphorus) + np.asarray(f1.sediment_phosphorus)),
+                               0.5 * (np.asarray(f0.denitrification) + np.asarray(f1.denitrification)))
 
 
 class _Network:

@@ -79,3 +79,12 @@ def sediment_phosphorus_release(release_20, theta, temperature, depth):
     in the Arrhenius form of Bowie et al. (1985) [4].
     """
     return release_20 * temperature_factor(theta, temperature) / depth
+
+
+def denitrification_rate(rate_20, theta, temperature):
+    """Specific denitrification rate of dissolved inorganic nitrogen. [1/d]
+
+    rate_20 [1/d] at 20 °C, theta [-], temperature [°C]: first-order loss
+    with Arrhenius temperature dependence (Chapra 1997 [3], ch. 28).
+    """
+    return rate_20 * temperature_factor(theta, temperature)

@@ -6,12 +6,12 @@ chlorophyll-a [µg/L]:
 
     growth   mu_g = mu_max_g·theta_g^(T−20)·f_light,g·min(N/(K_N,g+N), P/(K_P,g+P))
     dA_g/dt  = (mu_g − m_g(T) − v_g/z_b)·A_g                    + transport
-    dN/dt    = −a_N·Σ mu_g A_g + r·a_N·Σ m_g A_g                + transport
+    dN/dt    = −a_N·Σ mu_g A_g + r·a_N·Σ m_g A_g − k_dn(T)·N     + transport
     dP/dt    = −a_P·Σ mu_g A_g + r·a_P·Σ m_g A_g + J_sed(T)/z_b + transport
 
 a_N, a_P nutrient per chlorophyll (carbon:chlorophyll × Redfield), r the
 recycled fraction, m_g temperature-dependent mortality + respiration, v_g
-settling velocity, J_sed internal phosphorus loading. f_light is Steele's
+settling velocity, J_sed internal phosphorus loading, k_dn denitrification. f_light is Steele's
 curve averaged over the mixed depth with self-shading (:mod:`light`),
 transport the flow network (:mod:`hydraulics`). Methods and sources in
 :mod:`kinetics`, :mod:`light` and :mod:`parameters`; the scheme follows the
@@ -60,6 +60,8 @@ class Coefficients:
     k_chlorophyll: float
     sediment_release_20: float
     theta_sediment: float
+    denitrification_20: float
+    theta_denitrification: float
 
 
 def coefficients(spec: ModelSpec, params: dict | None = None, n_members: int | None = None) -> Coefficients:
@@ -106,6 +108,8 @@ def coefficients(spec: ModelSpec, params: dict | None = None, n_members: int | N
         k_chlorophyll=spec.chlorophyll_attenuation_m2_mg,
         sediment_release_20=spec.sediment_phosphorus_release_20_mg_m2_d,
         theta_sediment=spec.theta_sediment_release,
+        denitrification_20=spec.denitrification_20_per_d,
+        theta_denitrification=spec.theta_denitrification,
     )
 
 
@@ -196,13 +200,15 @@ class ProcessFluxes:
 
     growth, mortality, settling (M, B, G) in chlorophyll-a units (growth of
     A, mortality + respiration of A, settling of A); sediment_phosphorus
-    (B,) [µg P/L/d] or 0.0. Nutrient fluxes follow by stoichiometry.
+    (B,) [µg P/L/d] or 0.0; denitrification (M, B) [µg N/L/d] or 0.0.
+    Nutrient fluxes of the algae follow by stoichiometry.
     """
 
     growth: np.ndarray
     mortality: np.ndarray
     settling: np.ndarray
     sediment_phosphorus: np.ndarray | float
+    denitrification: np.ndarray | float = 0.0
 
 
 def process_fluxes(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray,
@@ -214,7 +220,11 @@ def process_fluxes(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par
     if co.sediment_release_20 > 0:
         release = kinetics.sediment_phosphorus_release(
             co.sediment_release_20, co.theta_sediment, temperature, co.depth_m)
-    return ProcessFluxes(mu * A, m * A, s * A, release)
+    denitrification = 0.0
+    if co.denitrification_20 > 0:
+        denitrification = kinetics.denitrification_rate(
+            co.denitrification_20, co.theta_denitrification, temperature) * C[..., 0]
+    return ProcessFluxes(mu * A, m * A, s * A, release, denitrification)
 
 
 def tendency_from_fluxes(f: ProcessFluxes, co: Coefficients) -> np.ndarray:
@@ -223,7 +233,7 @@ def tendency_from_fluxes(f: ProcessFluxes, co: Coefficients) -> np.ndarray:
     recycled = co.recycled * f.mortality.sum(axis=-1)
     out = np.empty(f.growth.shape[:-1] + (2 + f.growth.shape[-1],))
     out[..., 2:] = f.growth - f.mortality - f.settling
-    out[..., 0] = co.n_to_chl * (recycled - uptake)
+    out[..., 0] = co.n_to_chl * (recycled - uptake) - f.denitrification
     out[..., 1] = co.p_to_chl * (recycled - uptake) + f.sediment_phosphorus
     return out
 
@@ -310,9 +320,10 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
     """Mass fluxes of the network budget [kg/d], each (M, 2) for (N, P).
 
     Keys: ``inflow`` (external loads), ``outflow`` (leaving the system),
-    ``settling``, ``mortality_loss`` (the non-recycled part), ``sediment_release``
-    and ``net`` = inflow − outflow − settling − mortality_loss + sediment_release,
-    which equals d(total_mass)/dt. forcing at one time.
+    ``settling``, ``mortality_loss`` (the non-recycled part),
+    ``denitrification`` (N only), ``sediment_release`` (P only) and ``net`` =
+    inflow − outflow − settling − mortality_loss − denitrification +
+    sediment_release, which equals d(total_mass)/dt. forcing at one time.
     """
     layout = StateLayout(spec)
     E = np.asarray(E, dtype=float)
@@ -341,8 +352,13 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
     if co.sediment_release_20 > 0:
         j = kinetics.sediment_phosphorus_release(co.sediment_release_20, co.theta_sediment, T, co.depth_m)
         release[:, 1] = (j * co.volume_m3).sum()
-    out = {"inflow": inflow, "outflow": outflow, "settling": settling,
-           "mortality_loss": mortality_loss, "sediment_release": release}
+    denitrification = np.zeros((E.shape[0], 2))
+    if co.denitrification_20 > 0:
+        k_dn = kinetics.denitrification_rate(co.denitrification_20, co.theta_denitrification, T)
+        denitrification[:, 0] = (k_dn * C[..., 0] * co.volume_m3).sum(axis=-1)
+    out = {"inflow": inflow, "outflow": outflow, "settling": settling, "mortality_loss": mortality_loss,
+           "denitrification": denitrification, "sediment_release": release}
     out = {k: np.asarray(v) * KG_PER_MG for k, v in out.items()}
-    out["net"] = out["inflow"] - out["outflow"] - out["settling"] - out["mortality_loss"] + out["sediment_release"]
+    out["net"] = (out["inflow"] - out["outflow"] - out["settling"] - out["mortality_loss"]
+                  - out["denitrification"] + out["sediment_release"])
     return out

@@ -27,19 +27,22 @@ Warm, calm, nitrogen-poor water favours cyanobacteria in Bloomline through
 the combination of:
 
 * a steeper temperature response (theta 1.10 against Eppley's 1.065 for the
-  green algae) from a lower rate at 20 °C (1.1 against 2.0 /d): the gap in
-  maximum growth narrows from 2.3× at 12 °C to 1.5× at 27 °C;
+  green algae) from a lower rate at 20 °C (1.2 against 2.0 /d): the gap in
+  maximum growth narrows from 2.1× at 12 °C to 1.3× at 27 °C;
 * buoyancy: no settling loss, while the green algae settle at 0.15 m/d,
   which costs them 0.06 /d in a 2.5 m deep arm (settling stands for calm
   water; mixing by wind is not modelled);
 * a low nitrogen half-saturation (5 against 15 µg N/L), a mass-conserving
   stand-in for nitrogen fixation: fixation itself is not modelled, so total
   nitrogen stays a conserved quantity that the mass-balance checks verify;
-* a lower light saturation (shade tolerance under self-shading).
+* a lower light saturation (shade tolerance under self-shading) and a
+  slightly higher phosphorus affinity (K_P 1.5 against 2 µg P/L), so a
+  small cyanobacteria population persists through a phosphorus-limited
+  early summer and can bloom once nitrogen runs low.
 
-The green algae keep a lower phosphorus half-saturation (2 against 3 µg P/L)
-and win in cool or phosphorus-limited, nitrogen-rich water. The checks in
-tests/assimilation/test_cyanobacteria_bloom.py pin both outcomes.
+The green algae win in cool, nitrogen-rich water by their faster growth.
+The checks in tests/assimilation/test_cyanobacteria_bloom.py pin both
+outcomes.
 """
 from __future__ import annotations
 
@@ -80,6 +83,13 @@ SEDIMENT_PHOSPHORUS_RELEASE_20_MG_M2_D = 0.0
 #: Temperature coefficient of sediment phosphorus release [-] (from memory).
 THETA_SEDIMENT_RELEASE = 1.08
 
+#: Denitrification, a first-order loss of dissolved inorganic nitrogen to N2
+#: at the sediment–water interface, at 20 °C [1/d]; 0.01–0.1 /d in lakes
+#: (from memory, ranges of [1], [2] ch. 28). Mid-low value.
+DENITRIFICATION_20_PER_D = 0.02
+#: Temperature coefficient of denitrification [-]; 1.045 in [2] (from memory).
+THETA_DENITRIFICATION = 1.045
+
 # --- phytoplankton groups (rates at 20 °C) ----------------------------------
 #: Eppley (1972) [3]: log10 mu = 0.0275 T − 0.070, i.e. theta = 10**0.0275.
 THETA_EPPLEY = 10.0 ** 0.0275
@@ -99,10 +109,10 @@ GREEN_ALGAE = dict(
 
 CYANOBACTERIA = dict(
     name="cyanobacteria",
-    mu_max_20_per_d=1.1,          # slower than greens at 20 °C [1] (from memory)
+    mu_max_20_per_d=1.2,          # slower than greens at 20 °C [1] (from memory)
     theta_growth=1.10,            # steeper temperature response (from memory)
     k_n_ugL=5.0,                  # low K_N: stand-in for N fixation (see module doc)
-    k_p_ugL=3.0,                  # [1] (from memory)
+    k_p_ugL=1.5,                  # high P affinity, K_P 1–5 µg P/L in [1] (from memory)
     light_saturation_W_m2=50.0,   # shade tolerant (from memory)
     mortality_20_per_d=0.08,      # [1] (from memory)
     theta_mortality=1.08,         # [1] (from memory)

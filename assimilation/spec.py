@@ -127,7 +127,8 @@ class ModelSpec:
     phosphorus_to_chlorophyll [µg P/µg chl]. recycled_fraction [-] of
     mortality returned to N and P. Internal loading:
     sediment_phosphorus_release_20_mg_m2_d [mg P/m²/d] at 20 °C with
-    theta_sediment_release [-]. Defaults and sources in
+    theta_sediment_release [-]. Nitrogen loss: denitrification_20_per_d [1/d]
+    at 20 °C with theta_denitrification [-]. Defaults and sources in
     :mod:`assimilation.parameters`.
     """
 
@@ -142,6 +143,8 @@ class ModelSpec:
     recycled_fraction: float = _p.RECYCLED_FRACTION
     sediment_phosphorus_release_20_mg_m2_d: float = _p.SEDIMENT_PHOSPHORUS_RELEASE_20_MG_M2_D
     theta_sediment_release: float = _p.THETA_SEDIMENT_RELEASE
+    denitrification_20_per_d: float = _p.DENITRIFICATION_20_PER_D
+    theta_denitrification: float = _p.THETA_DENITRIFICATION
 
     def __post_init__(self):
         object.__setattr__(self, "basins", tuple(self.basins))
@@ -159,11 +162,12 @@ class ModelSpec:
                 raise ValueError(f"{kind} names must be unique, got {names}")
         if not 0.0 <= self.recycled_fraction <= 1.0:
             raise ValueError(f"recycled_fraction must be in [0, 1], got {self.recycled_fraction}")
-        for key in ("par_fraction", "nitrogen_to_chlorophyll", "phosphorus_to_chlorophyll", "theta_sediment_release"):
+        for key in ("par_fraction", "nitrogen_to_chlorophyll", "phosphorus_to_chlorophyll", "theta_sediment_release",
+                    "theta_denitrification"):
             if not getattr(self, key) > 0:
                 raise ValueError(f"{key} must be positive, got {getattr(self, key)}")
         for key in ("background_attenuation_per_m", "chlorophyll_attenuation_m2_mg",
-                    "sediment_phosphorus_release_20_mg_m2_d"):
+                    "sediment_phosphorus_release_20_mg_m2_d", "denitrification_20_per_d"):
             if not getattr(self, key) >= 0:
                 raise ValueError(f"{key} must be non-negative, got {getattr(self, key)}")
 

@@ -48,3 +48,9 @@ def test_sediment_release_doubles_about_every_nine_degrees_with_theta_1_08():
     r29 = kinetics.sediment_phosphorus_release(1.0, 1.08, 29.0, 2.0)
     assert r20 == pytest.approx(0.5)          # 1 mg/m²/d over 2 m = 0.5 mg/m³/d = 0.5 µg/L/d
     assert r29 / r20 == pytest.approx(1.08 ** 9)
+
+
+def test_denitrification_rate_follows_arrhenius_with_theta_1_045():
+    # first-order DIN loss with theta 1.045 (Chapra 1997, ch. 28; from memory)
+    assert kinetics.denitrification_rate(0.02, 1.045, 20.0) == pytest.approx(0.02)
+    assert kinetics.denitrification_rate(0.02, 1.045, 30.0) == pytest.approx(0.02 * 1.045 ** 10)

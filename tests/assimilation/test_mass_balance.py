@@ -24,8 +24,9 @@ def closed_spec(**overrides):
 
 
 def test_closed_network_without_sinks_conserves_total_nitrogen_and_phosphorus_to_round_off():
-    # no inflow, full recycling, no settling, no sediment: total N and P are invariants (common practice)
-    spec = closed_spec(recycled_fraction=1.0)
+    # no inflow, full recycling, no settling, no denitrification, no sediment release:
+    # total N and P are invariants (common practice)
+    spec = closed_spec(recycled_fraction=1.0, denitrification_20_per_d=0.0)
     spec = replace(spec, groups=tuple(replace(g, settling_m_per_d=0.0) for g in spec.groups))
     drivers = closed_drivers()
     E = initial_ensemble(spec, 20)
@@ -39,7 +40,7 @@ def test_closed_network_without_sinks_conserves_total_nitrogen_and_phosphorus_to
 
 def test_conservation_holds_for_huge_steps_and_stiff_growth():
     # positivity and conservation are unconditional (Burchard et al. 2003): 12-hour steps, growth 20 /d
-    spec = closed_spec(recycled_fraction=1.0)
+    spec = closed_spec(recycled_fraction=1.0, denitrification_20_per_d=0.0)
     spec = replace(spec, groups=tuple(replace(g, settling_m_per_d=0.0, mu_max_20_per_d=20.0) for g in spec.groups))
     drivers = closed_drivers()
     E = initial_ensemble(spec, 10)
@@ -49,7 +50,7 @@ def test_conservation_holds_for_huge_steps_and_stiff_growth():
     np.testing.assert_allclose(mass, np.broadcast_to(mass[0], mass.shape), rtol=1e-12, atol=0)
 
 
-def test_closed_network_loses_exactly_what_settles_and_is_not_recycled():
+def test_closed_network_loses_exactly_what_settles_is_not_recycled_or_denitrified():
     spec = closed_spec()
     drivers = closed_drivers(days=20)
     E = initial_ensemble(spec, 4)
@@ -64,7 +65,8 @@ def test_closed_network_loses_exactly_what_settles_and_is_not_recycled():
 
 def _fluxes(E, spec, drivers, t):
     f = model.mass_fluxes(E, spec, model.forcing_at(drivers, spec, [t]))
-    return f["settling"] + f["mortality_loss"] - f["sediment_release"] - f["inflow"] + f["outflow"]
+    return (f["settling"] + f["mortality_loss"] + f["denitrification"] - f["sediment_release"]
+            - f["inflow"] + f["outflow"])
 
 
 def test_open_network_change_in_mass_equals_inflow_minus_outflow_minus_losses():
@@ -83,7 +85,8 @@ def test_open_network_change_in_mass_equals_inflow_minus_outflow_minus_losses():
 
 
 def test_mass_fluxes_net_equals_rate_of_change_of_total_mass_from_the_tendency():
-    # bookkeeping identity: d/dt Σ V·(N + a_N ΣA) equals inflow − outflow − settling − loss (+ release for P)
+    # bookkeeping identity: d/dt Σ V·(N + a_N ΣA) equals inflow − outflow − settling − loss − denitrification
+    # (+ release for P)
     spec = three_basin_spec(sediment_phosphorus_release_20_mg_m2_d=1.5)
     drivers = summer_drivers(days=3)
     rng = np.random.default_rng(5)
