@@ -11,8 +11,8 @@ chlorophyll-a [µg/L]:
 
 a_N, a_P nutrient per chlorophyll (carbon:chlorophyll × Redfield), r the
 recycled fraction, m_g temperature-dependent mortality + respiration, v_g
-settling velocity, J_sed internal phosphorus loading, k_dn denitrification. f_light is Steele's
-curve averaged over the mixed depth with self-shading (:mod:`light`),
+settling velocity, J_sed internal phosphorus loading, k_dn denitrification.
+f_light is Steele's curve averaged over the mixed depth with self-shading (:mod:`light`),
 transport the flow network (:mod:`hydraulics`). Methods and sources in
 :mod:`kinetics`, :mod:`light` and :mod:`parameters`; the scheme follows the
 nutrient–phytoplankton models of Di Toro et al. (1971) and Chapra (1997,
