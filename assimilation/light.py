@@ -62,10 +62,12 @@ def steele_depth_average_mean(surface_irradiance, weights, saturation, attenuati
         return sum(w * steele_depth_average(i0, saturation, attenuation, depth)
                    for w, i0 in zip(weights, surface_irradiance))
     bottom = np.exp(-kh)
-    total = 0.0
+    total = np.zeros(np.broadcast_shapes(np.shape(surface_irradiance[0]), np.shape(saturation), kh.shape))
     for w, i0 in zip(weights, surface_irradiance):
+        if not np.any(i0):
+            continue            # darkness adds nothing (night hours)
         a0 = i0 / saturation
-        total = total + w * (np.exp(-a0 * bottom) - np.exp(-a0))
+        total += w * (np.exp(-a0 * bottom) - np.exp(-a0))
     return (np.e / kh) * total
 
 
