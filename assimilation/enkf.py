@@ -100,8 +100,13 @@ def _stochastic(E, HE, y, R, rng, rho, rho_obs, center):
         eps -= eps.mean(axis=0)
     D = y + eps * np.sqrt(R)
     innov = D - HE
-    c = cho_factor(S, lower=True, check_finite=False)
-    return E + cho_solve(c, innov.T, check_finite=False).T @ Pxy.T
+    try:
+        gain_innov = cho_solve(cho_factor(S, lower=True, check_finite=False), innov.T, check_finite=False)
+    except np.linalg.LinAlgError:
+        # A tapered Pyy need not be positive definite when the distances are
+        # not Euclidean (hops along a network); fall back to a general solve.
+        gain_innov = np.linalg.solve(S, innov.T)
+    return E + gain_innov.T @ Pxy.T
 
 
 def _sqrt(E, HE, y, R, rho):
