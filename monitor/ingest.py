@@ -283,8 +283,27 @@ def _raw(parsed: Parsed, line) -> str:
     return clean_text(parsed.raw.get(int(line), ""))
 
 
-def _stored(conn: Connection, station: str, variable: str, source: str | None, t0: int, t1: int) -> pd.DataFrame:
-    """Stored readings of one series with t0 <= time <= t1 [ns]."""
+@dataclass
+class _Stored:
+    """Stored readings of one series (numpy arrays, in time order within each source)."""
+
+    id: np.ndarray
+    t: np.ndarray
+    value: np.ndarray
+    qc_flag: np.ndarray
+    qc_tests: np.ndarray
+    source: np.ndarray
+
+    def __len__(self) -> int:
+        return int(self.t.size)
+
+    def subset(self, mask: np.ndarray) -> "_Stored":
+        return _Stored(self.id[mask], self.t[mask], self.value[mask], self.qc_flag[mask], self.qc_tests[mask],
+                       self.source[mask])
+
+
+def _stored(conn: Connection, station: str, variable: str, source: str | None, t0: int, t1: int) -> _Stored:
+    """Stored readings of one series with t0 <= time <= t1 [ns], ordered by time."""
     d = conn.dialect.name
     ph = _ph(conn)
     lo, hi = db_times(np.array([t0, t1]), d)
@@ -294,16 +313,15 @@ def _stored(conn: Connection, station: str, variable: str, source: str | None, t
     if source is not None:
         sql += f" AND source = {ph}"
         params.append(source)
-    rows = conn.exec_driver_sql(sql, tuple(params)).fetchall()
+    rows = conn.exec_driver_sql(sql + " ORDER BY time_utc", tuple(params)).fetchall()
     if not rows:
-        return pd.DataFrame({"id": np.array([], dtype=np.int64), "t": np.array([], dtype=np.int64),
-                             "value": np.array([], dtype=float), "qc_flag": np.array([], dtype=np.int64),
-                             "qc_tests": np.array([], dtype=object), "source": np.array([], dtype=object)})
+        e = np.array([], dtype=np.int64)
+        return _Stored(e, e, np.array([], dtype=float), e, np.array([], dtype=object), np.array([], dtype=object))
     ids, times, values, flags, tests, sources = zip(*rows)
-    return pd.DataFrame({"id": np.asarray(ids, dtype=np.int64), "t": ns_from_db(times, d),
-                         "value": np.array([np.nan if v is None else v for v in values], dtype=float),
-                         "qc_flag": np.asarray(flags, dtype=np.int64), "qc_tests": list(tests),
-                         "source": list(sources)})
+    return _Stored(np.asarray(ids, dtype=np.int64), ns_from_db(times, d),
+                   np.array([np.nan if v is None else v for v in values], dtype=float),
+                   np.asarray(flags, dtype=np.int64), np.asarray(tests, dtype=object),
+                   np.asarray(sources, dtype=object))
 
 
 def _lab_stations(config, station_id: str) -> list[str]:
@@ -325,9 +343,9 @@ def _lab_series(conn: Connection, config, station_id: str, t0: int, t1: int) -> 
     times, values = [], []
     for lab in _lab_stations(config, station_id):
         got = _stored(conn, lab, "chlorophyll_a", None, t0, t1)
-        got = got[got["qc_flag"].isin([1, 2, 3]) & np.isfinite(got["value"].to_numpy())]
-        times.append(got["t"].to_numpy())
-        values.append(got["value"].to_numpy())
+        got = got.subset(np.isin(got.qc_flag, [1, 2, 3]) & np.isfinite(got.value))
+        times.append(got.t)
+        values.append(got.value)
     if not times:
         return np.array([], dtype=np.int64), np.array([])
     t = np.concatenate(times)
@@ -344,20 +362,20 @@ def _qualify(conn, config, station, variable, settings, t, v, t_min, t_max):
     return qc.run_qc(t, v, settings, lab_t, lab_v)
 
 
-def _update_neighbours(conn: Connection, stored: pd.DataFrame, flag, digits, in_range: np.ndarray) -> None:
+def _update_neighbours(conn: Connection, stored: _Stored, flag, digits, in_range: np.ndarray) -> None:
     """Write back stored readings whose QC result changed."""
-    if stored.empty:
+    if not len(stored):
         return
     tests = qc.digits_to_strings(digits)
-    old_flag = stored["qc_flag"].to_numpy()
-    old_tests = stored["qc_tests"].to_numpy()
+    old_flag = stored.qc_flag
+    old_tests = stored.qc_tests
     changed = in_range & ((flag != old_flag) | (tests != old_tests))
     if not changed.any():
         return
     ph = _ph(conn)
     conn.exec_driver_sql(f"UPDATE readings SET qc_flag = {ph}, qc_tests = {ph} WHERE id = {ph}",
                          [(int(f), str(s), int(i)) for f, s, i in
-                          zip(flag[changed], tests[changed], stored["id"].to_numpy()[changed])])
+                          zip(flag[changed], tests[changed], stored.id[changed])])
 
 
 def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch_id: int,
@@ -383,12 +401,12 @@ def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch
         t_min, t_max = int(t_new.min()), int(t_new.max())
         stored = _stored(conn, station, variable, source, t_min - 2 * margin, t_max + 2 * margin)
         keep = np.ones(t_new.size, dtype=bool)
-        stored_values = stored["value"].to_numpy().copy()
+        stored_values = stored.value.copy()
         fill_rows = np.zeros(len(stored), dtype=bool)
-        if not stored.empty:
-            pos = np.searchsorted(stored["t"].to_numpy(), t_new)
+        if len(stored):
+            pos = np.searchsorted(stored.t, t_new)
             pos_c = np.clip(pos, 0, len(stored) - 1)
-            hit = stored["t"].to_numpy()[pos_c] == t_new
+            hit = stored.t[pos_c] == t_new
             for i in np.nonzero(hit)[0]:
                 keep[i] = False
                 j = pos_c[i]
@@ -404,7 +422,7 @@ def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch
                     rejections.append(Rejection(int(line_new[i]), _raw(parsed, line_new[i]),
                                                 f"{variable} at {station} conflicts with the stored reading "
                                                 f"(stored {old!r}, received {v_new[i]!r})"))
-        t_all = np.concatenate([stored["t"].to_numpy(), t_new[keep]])
+        t_all = np.concatenate([stored.t, t_new[keep]])
         v_all = np.concatenate([stored_values, v_new[keep]])
         order = np.argsort(t_all, kind="stable")
         flag_s, digits_s = _qualify(conn, config, station, variable, settings, t_all[order], v_all[order],
@@ -414,20 +432,20 @@ def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch
         flag_all[order] = flag_s
         digits_all[order] = digits_s
         n_stored = len(stored)
-        st_t = stored["t"].to_numpy()
+        st_t = stored.t
         in_range = (st_t >= t_min - margin) & (st_t <= t_max + margin) & ~fill_rows
         _update_neighbours(conn, stored, flag_all[:n_stored], digits_all[:n_stored], in_range)
         if fill_rows.any():
             tests = qc.digits_to_strings(digits_all[:n_stored])
             for j in np.nonzero(fill_rows)[0]:
                 fills.append((float(stored_values[j]), int(flag_all[j]), str(tests[j]), batch_id,
-                              int(stored["id"].iat[j])))
+                              int(stored.id[j])))
                 accepted += 1
                 flagged += int(flag_all[j] in (3, 4))
         f_new = flag_all[n_stored:]
         out_t.append(t_new[keep])
-        out_station.append(np.full(f_new.size, station, dtype=object))
-        out_variable.append(np.full(f_new.size, variable, dtype=object))
+        out_station.extend([station] * f_new.size)
+        out_variable.extend([variable] * f_new.size)
         out_value.append(v_new[keep])
         out_flag.append(f_new)
         out_tests.append(qc.digits_to_strings(digits_all[n_stored:]))
@@ -444,7 +462,7 @@ def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch
         values = np.concatenate(out_value)
         # SQLite stores a bound NaN as NULL; other drivers get None for a missing value
         value_list = values.tolist() if d == "sqlite" else [None if v != v else v for v in values.tolist()]
-        rows = list(zip(np.concatenate(out_station).tolist(), np.concatenate(out_variable).tolist(),
+        rows = list(zip(out_station, out_variable,
                         db_times(t, d), value_list, np.concatenate(out_flag).astype(int).tolist(),
                         np.concatenate(out_tests).tolist(), repeat(source), repeat(batch_id)))
         inserted = _insert_readings(conn, rows)
@@ -482,12 +500,10 @@ def _requalify_fluorometers(conn: Connection, config, lab_station: str, t0: int,
         margin = int(qc.context_hours(settings) * _NS_PER_H)
         lo, hi = t0 - window, t1 + hold + window
         stored = _stored(conn, station, "chlorophyll_fluorescence", None, lo - margin, hi + margin)
-        for _source, g in stored.groupby("source", sort=False):
-            g = g.sort_values("t", kind="stable")
-            flag, digits = _qualify(conn, config, station, "chlorophyll_fluorescence", settings,
-                                    g["t"].to_numpy(), g["value"].to_numpy(), lo, hi)
-            gt = g["t"].to_numpy()
-            _update_neighbours(conn, g.reset_index(drop=True), flag, digits, (gt >= lo) & (gt <= hi))
+        for source in dict.fromkeys(stored.source.tolist()):
+            g = stored.subset(stored.source == source)  # in time order, as queried
+            flag, digits = _qualify(conn, config, station, "chlorophyll_fluorescence", settings, g.t, g.value, lo, hi)
+            _update_neighbours(conn, g, flag, digits, (g.t >= lo) & (g.t <= hi))
 
 
 # --------------------------------------------------------------------------
