@@ -36,7 +36,7 @@ from typing import Callable, Iterable
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import func, insert, select, update
+from sqlalchemy import insert, select, update
 from sqlalchemy.engine import Connection, Engine
 
 from monitor import qc

@@ -39,7 +39,6 @@ from __future__ import annotations
 from typing import Mapping
 
 import numpy as np
-import pandas as pd
 
 PASS, NOT_EVALUATED, SUSPECT, FAIL, MISSING = 1, 2, 3, 4, 9
 TESTS = ("gross_range", "climatology", "spike", "rate_of_change", "flat_line", "drift")

@@ -12,7 +12,6 @@ import textwrap
 from pathlib import Path
 
 import numpy as np
-import pytest
 from sqlalchemy import func, select
 
 from monitor import ingest as ingest_mod
@@ -263,3 +262,16 @@ def test_killing_the_process_in_the_middle_of_a_batch_leaves_none_of_it(tmp_path
         assert r.accepted == 1200 and count(engine, readings) == 1200
     finally:
         engine.dispose()
+
+
+def test_qc_thresholds_come_from_the_config_and_the_station(tmp_path, sqlite_engine):
+    config = fernwater(tmp_path, qc={"phycocyanin": {"user_max": 1.01}},
+                       station_qc={"water_temperature": {"user_max": 18.005}})
+    ingest_bytes(sqlite_engine, config, config.feed("buoys"), buoy_csv(smooth_rows("2026-07-01 00:00", 6)),
+                 "drop/FW-1/a.csv", now=NOW)
+    frame = stored(sqlite_engine)
+    temp = frame[frame["variable"] == "water_temperature"]
+    pc = frame[frame["variable"] == "phycocyanin"]
+    # temperatures 18.000 … 18.010 against a station user maximum of 18.005; pc 1.000 … 1.025 against 1.01
+    assert temp["qc_flag"].tolist() == [1, 1, 1, 3, 3, 3]
+    assert pc["qc_flag"].tolist() == [1, 1, 1, 3, 3, 3]

@@ -5,7 +5,6 @@ from __future__ import annotations
 import threading
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
 
-import tomllib
 from click.testing import CliRunner
 
 from monitor.ingest_cli import ingest
@@ -49,7 +48,6 @@ columns.temp = { variable = "water_temperature", unit = "degC" }
 
 def setup(tmp_path):
     (tmp_path / "bloomline.toml").write_text(TOML)
-    tomllib.loads(TOML)
     drop = tmp_path / "drop"
     drop.mkdir()
     for k, day in enumerate(("01", "02")):

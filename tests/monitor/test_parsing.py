@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import dataclasses
-import datetime as dt
 import json
 
 import numpy as np
@@ -70,7 +69,6 @@ def test_every_kind_of_bad_record_is_rejected_with_line_and_reason(config):
                "2026-07-01 01:00,1e999,2,20\n"      # 7 overflow
                "2026-07-01 01:15,1,2,20;DROP TABLE readings\n").encode()  # 8 injection in a value
     p = parse_payload(payload, feed, config, origin="d/FW-1/x.csv", now=NOW)
-    reasons = {(r.line, r.reason.split(":")[0].split(" ")[0]) for r in p.rejected}
     by_line = {r.line: r.reason for r in p.rejected}
     assert "expected 4 fields, got 3" == by_line[3]
     assert "does not match the time format" in by_line[4]
@@ -79,7 +77,6 @@ def test_every_kind_of_bad_record_is_rejected_with_line_and_reason(config):
     assert "1e999" in by_line[7]
     assert "DROP TABLE" in by_line[8] and "not a finite decimal number" in by_line[8]
     assert sorted(set(p.line.tolist())) == [2, 6, 7, 8]
-    assert reasons  # every rejection has a line
     assert set(p.record_lines) == set(range(2, 9))
 
 
