@@ -118,6 +118,8 @@ class StationConfig:
     variables: tuple[str, ...]
     calibration: Mapping[str, Calibration] = field(default_factory=dict)
     qc: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
+    # seasonal expected span per variable: 12 (min, max) pairs, January … December (QC climatology test)
+    climatology: Mapping[str, tuple[tuple[float, float], ...]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -495,9 +497,28 @@ def _station(r: _Reader) -> StationConfig:
     ct.finish()
     st = StationConfig(id=r.get("id", str), kind=r.choice("kind", STATION_KINDS),
                        water_body=r.get("water_body", str, None), basin=r.get("basin", str, None),
-                       variables=variables, calibration=cal, qc=_qc_table(r, "qc"))
+                       variables=variables, calibration=cal, qc=_qc_table(r, "qc"),
+                       climatology=_climatology(r))
     r.finish()
     return st
+
+
+def _climatology(r: _Reader) -> dict[str, tuple[tuple[float, float], ...]]:
+    """``climatology.<variable> = [[min, max], …]``: twelve monthly spans, January first."""
+    table = r.sub("climatology")
+    out = {}
+    for variable in list(table.table):
+        if variable not in VARIABLES:
+            raise table.error(variable, f"unknown variable; expected one of {', '.join(VARIABLES)}")
+        spans = table.get(variable, list)
+        ok = len(spans) == 12 and all(
+            isinstance(p, list) and len(p) == 2 and all(isinstance(x, (int, float)) and not isinstance(x, bool)
+                                                        for x in p) and p[0] < p[1] for p in spans)
+        if not ok:
+            raise table.error(variable, "expected 12 [min, max] pairs (January to December) with min < max")
+        out[variable] = tuple((float(lo), float(hi)) for lo, hi in spans)
+    table.finish()
+    return out
 
 
 def _feed(r: _Reader, base: Path) -> FeedConfig:
