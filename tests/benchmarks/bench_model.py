@@ -10,8 +10,8 @@ The reference is scipy's ``solve_ivp`` (LSODA) on the same equations
 a tolerance (rtol = atol = 3e-4 by default) whose own error against a
 tight solve (LSODA, rtol 1e-8) is no larger than Bloomline's hourly error:
 measured on member 0 over the 365 days with the metric below, LSODA at
-3e-4 is off by 1.0 %, Bloomline at dt = 1 h by 1.75 %, LSODA at 1e-3 by
-3.3 % (at about the same cost as 3e-4).
+3e-4 is off by 0.8 %, Bloomline at dt = 1 h by 1.7 %, LSODA at 1e-3 by
+2.3 % (at about 80 % of the cost of 3e-4).
 
 ``max_rel_diff`` is max |X − X_ref| / (|X_ref| + 0.1 µg/L) over the daily
 states of the members solved by the reference. Timing the reference for all
