@@ -29,9 +29,17 @@ half its value, else the first-order Patankar step. The light factor of a
 step is its time mean by 3-point Gauss–Legendre quadrature: irradiance
 changes within an hour far more than the state does (sunrise, sunset).
 
+Accuracy: second order; at dt = 1 h the daily states of 60 summer days in
+a 3-basin reservoir agree with solve_ivp (LSODA, rtol 1e-8) to within
+max |Δ|/(|ref| + 0.1 µg/L) ≈ 0.03 (tests/assimilation/test_model_vs_solve_ivp.py).
+Steps far longer than the turnover time of a depleted nutrient (12–24 h in
+a chemostat with N ≪ K_N) stay positive and conservative but can oscillate
+about the steady state; keep dt ≤ a few hours.
+
 Vectorised over members and basins; the only Python loops are over time
-steps and over the few network sweeps. Drivers are interpolated once for all
-steps of a call.
+steps and over the network sweeps (as many as basins on the longest flow
+path, each sweep vectorised over all members and basins). Drivers are
+interpolated once for all steps of a call.
 """
 from __future__ import annotations
 
