@@ -102,13 +102,20 @@ def thresholds(variable: str, *overrides: Mapping[str, float] | None) -> dict[st
     return out
 
 
-def settings_for(config, station_id: str, variable: str) -> dict[str, float | None]:
-    """Defaults ⊕ ``config.qc[variable]`` ⊕ the station's ``qc[variable]``."""
-    station_qc = {}
+def settings_for(config, station_id: str, variable: str) -> dict:
+    """Defaults ⊕ ``config.qc[variable]`` ⊕ the station's ``qc[variable]``.
+
+    A station's seasonal climatology (twelve monthly spans) comes along as
+    ``climatology_months`` and takes precedence over the scalar span.
+    """
+    station_qc, months = {}, None
     for st in getattr(config, "stations", ()):
         if st.id == station_id:
             station_qc = st.qc.get(variable, {})
-    return thresholds(variable, getattr(config, "qc", {}).get(variable), station_qc)
+            months = getattr(st, "climatology", {}).get(variable)
+    out = thresholds(variable, getattr(config, "qc", {}).get(variable), station_qc)
+    out["climatology_months"] = months
+    return out
 
 
 def context_hours(settings: Mapping[str, float | None]) -> float:
@@ -334,7 +341,8 @@ def run_qc(times_ns: np.ndarray, values: np.ndarray, settings: Mapping[str, floa
     """All tests on one station's series of one variable.
 
     times_ns: int64 nanoseconds since 1970 UTC, strictly increasing;
-    values [canonical unit], NaN = missing; settings from :func:`thresholds`;
+    values [canonical unit], NaN = missing; settings from :func:`thresholds` or
+    :func:`settings_for` (``climatology_months``: twelve (min, max) spans by UTC month);
     lab_times_ns / lab_values: extracted chlorophyll-a for the drift check.
     Returns (flag (n,) uint8, digits (n, len(TESTS)) uint8).
     """
@@ -348,7 +356,7 @@ def run_qc(times_ns: np.ndarray, values: np.ndarray, settings: Mapping[str, floa
     s = settings
     cols = [
         gross_range(vp, s.get("sensor_min"), s.get("sensor_max"), s.get("user_min"), s.get("user_max")),
-        climatology(vp, s.get("climatology_min"), s.get("climatology_max")),
+        climatology(vp, *_climatology_span(t_ns[present], s)),
         spike(vp, s.get("spike_suspect"), s.get("spike_fail"), th),
         rate_of_change(vp, th, s.get("rate_of_change_per_h")),
         flat_line(vp, th, s.get("flat_line_tolerance"), s.get("flat_line_suspect_h"), s.get("flat_line_fail_h")),
@@ -362,6 +370,16 @@ def run_qc(times_ns: np.ndarray, values: np.ndarray, settings: Mapping[str, floa
     flag = np.full(n, MISSING, dtype=np.uint8)
     flag[present] = aggregate(digits[present])
     return flag, digits
+
+
+def _climatology_span(t_ns: np.ndarray, s: Mapping) -> tuple:
+    """(low, high) for each reading: the month's span of a seasonal climatology, else the scalar span."""
+    months = s.get("climatology_months")
+    if months is None:
+        return s.get("climatology_min"), s.get("climatology_max")
+    spans = np.asarray(months, dtype=float).reshape(12, 2)
+    month = np.asarray(t_ns, dtype=np.int64).astype("datetime64[ns]").astype("datetime64[M]").astype(np.int64) % 12
+    return spans[month, 0], spans[month, 1]
 
 
 def digits_to_strings(digits: np.ndarray) -> np.ndarray:

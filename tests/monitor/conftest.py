@@ -30,7 +30,7 @@ BUOY_COLUMNS = {
 
 
 def fernwater(tmp_path: Path, database: str | None = None, feeds: list[dict] | None = None,
-              qc: dict | None = None, station_qc: dict | None = None):
+              qc: dict | None = None, station_qc: dict | None = None, climatology: dict | None = None):
     """The Config of the invented test lake, with store and archive under ``tmp_path``."""
     drop = tmp_path / "drop"
     drop.mkdir(exist_ok=True)
@@ -57,7 +57,8 @@ def fernwater(tmp_path: Path, database: str | None = None, feeds: list[dict] | N
             {"id": "FW-1", "kind": "buoy", "water_body": "fernwater", "basin": "north",
              "variables": ["chlorophyll_fluorescence", "phycocyanin", "water_temperature"],
              "calibration": {"phycocyanin": {"unit": "RFU", "slope": 2.5, "intercept": -0.5}},
-             **({"qc": station_qc} if station_qc else {})},
+             **({"qc": station_qc} if station_qc else {}),
+             **({"climatology": climatology} if climatology else {})},
             {"id": "FW-LAB", "kind": "lab", "water_body": "fernwater", "basin": "north",
              "variables": ["chlorophyll_a", "nitrate", "srp", "microcystin"]},
             {"id": "FW-G", "kind": "gauge", "variables": ["discharge", "nitrate"]},

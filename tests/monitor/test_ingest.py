@@ -275,3 +275,16 @@ def test_qc_thresholds_come_from_the_config_and_the_station(tmp_path, sqlite_eng
     # temperatures 18.000 … 18.010 against a station user maximum of 18.005; pc 1.000 … 1.025 against 1.01
     assert temp["qc_flag"].tolist() == [1, 1, 1, 3, 3, 3]
     assert pc["qc_flag"].tolist() == [1, 1, 1, 3, 3, 3]
+
+
+def test_a_station_seasonal_climatology_reaches_the_stored_flags(tmp_path, sqlite_engine):
+    spans = [[0.0, 10.0]] * 12
+    spans[6] = [15.0, 30.0]  # July
+    config = fernwater(tmp_path, climatology={"water_temperature": spans})
+    rows = smooth_rows("2026-06-30 20:00", 4) + smooth_rows("2026-07-01 04:00", 4)  # 18 °C, UTC+2
+    ingest_bytes(sqlite_engine, config, config.feed("buoys"), buoy_csv(rows), "drop/FW-1/a.csv", now=NOW)
+    with sqlite_engine.connect() as conn:
+        got = conn.execute(select(readings.c.time_utc, readings.c.qc_tests)
+                           .where(readings.c.variable == "water_temperature").order_by(readings.c.time_utc)).fetchall()
+    # the climatology digit (second): outside June's span, inside July's
+    assert [(t.month, tests[1]) for t, tests in got] == [(6, "3")] * 4 + [(7, "1")] * 4

@@ -148,3 +148,13 @@ def test_flat_line_is_not_evaluated_across_an_outage():
     hours = np.array([0.0, 0.25, 0.5, 20.0, 20.25, 20.5])
     values = np.array([1.0, 2.0, 3.0, 5.0, 5.0, 5.0])
     assert qc.flat_line(values, hours, 0.01, 6.0, 12.0).tolist() == [2, 2, 2, 2, 2, 2]
+
+
+def test_seasonal_climatology_uses_the_month_of_each_reading():
+    # QARTOD DO manual 2018, test 7: the expected span depends on the season
+    months = [(0.0, 8.0)] * 5 + [(15.0, 30.0)] * 3 + [(0.0, 8.0)] * 4  # June–August warm
+    t = np.array(["2026-05-31T23:00", "2026-06-01T01:00", "2026-09-01T00:00"], dtype="datetime64[ns]").astype(np.int64)
+    values = np.array([20.0, 20.0, 20.0])
+    settings = {**qc.thresholds("water_temperature"), "climatology_months": months}
+    _, digits = qc.run_qc(t, values, settings)
+    assert digits[:, qc.TESTS.index("climatology")].tolist() == [3, 1, 3]
