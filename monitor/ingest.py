@@ -135,7 +135,7 @@ def _safe(name: str) -> str:
 
 def _suffix(feed, origin: str) -> str:
     suffix = Path(origin.split("?")[0]).suffix.lower()
-    if re.fullmatch(r"\.[a-z0-9]{1,8}", suffix or ""):
+    if suffix in (".csv", ".json", ".txt", ".tsv", ".dat"):
         return suffix
     return ".json" if feed.format == "json" else ".csv"
 

@@ -123,3 +123,15 @@ def test_the_app_factory_serves_the_push_endpoint(tmp_path):
     resp = app.test_client().post(URL, json=RECORDS[:1], headers=auth())
     assert resp.status_code == 200 and resp.get_json()["accepted"] == 1
     app.extensions["bloomline"]["engine"].dispose()
+
+
+def test_pushed_payload_is_archived_as_json(push_client, push_app):
+    from pathlib import Path
+
+    from monitor.readings import batches_frame
+
+    body = json.dumps(RECORDS[:1]).encode()
+    push_client.post(URL, data=body, content_type="application/json", headers=auth())
+    engine = push_app.extensions["bloomline"]["engine"]
+    archive = Path(batches_frame(engine)["archive_path"].iloc[0])
+    assert archive.suffix == ".json" and archive.read_bytes() == body
