@@ -162,6 +162,8 @@ class FeedConfig:
     unit_column: str = "unit"
     columns: Mapping[str, ColumnConfig] = field(default_factory=dict)
     below_detection: str = "reject"
+    # long layout: the feed's own variable names → canonical names (e.g. "NO3-N" → "nitrate")
+    variable_names: Mapping[str, str] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -521,6 +523,18 @@ def _climatology(r: _Reader) -> dict[str, tuple[tuple[float, float], ...]]:
     return out
 
 
+def _variable_names(r: _Reader) -> dict[str, str]:
+    table = r.sub("variable_names")
+    out = {}
+    for name in list(table.table):
+        canonical = table.get(name, str)
+        if canonical not in VARIABLES:
+            raise table.error(name, f"expected one of {', '.join(VARIABLES)}; got {canonical!r}")
+        out[name] = canonical
+    table.finish()
+    return out
+
+
 def _feed(r: _Reader, base: Path) -> FeedConfig:
     name = r.get("name", str)
     kind = r.choice("kind", FEED_KINDS)
@@ -551,7 +565,8 @@ def _feed(r: _Reader, base: Path) -> FeedConfig:
         station_from_folder=r.get("station_from_folder", bool, False),
         variable_column=r.get("variable_column", str, "variable"),
         value_column=r.get("value_column", str, "value"), unit_column=r.get("unit_column", str, "unit"),
-        columns=columns, below_detection=r.choice("below_detection", BELOW_DETECTION, "reject"))
+        columns=columns, below_detection=r.choice("below_detection", BELOW_DETECTION, "reject"),
+        variable_names=_variable_names(r))
     if kind == "csv-folder" and fd.path is None:
         raise r.error("path", "a csv-folder feed needs the folder it watches")
     if kind == "http-pull" and not fd.url:
