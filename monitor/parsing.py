@@ -414,6 +414,26 @@ def parse_payload(payload: bytes, feed, config=None, *, origin: str = "",
     return _readings(table, feed, config, origin, now, result)
 
 
+def _canonical_variables(names, aliases: Mapping[str, str]) -> np.ndarray:
+    """The feed's variable names → canonical names: the feed's ``variable_names`` first, then the
+    canonical name itself in any case, with spaces or hyphens for underscores; else unchanged."""
+    lookup = {k.strip().lower(): v for k, v in aliases.items()}
+    cache: dict[str, str] = {}
+    out = []
+    for name in names:
+        got = cache.get(name)
+        if got is None:
+            key = name.strip().lower()
+            if key in lookup:
+                got = lookup[key]
+            else:
+                norm = "_".join(key.replace("-", " ").split())
+                got = norm if norm in VARIABLES else name.strip()
+            cache[name] = got
+        out.append(got)
+    return np.array(out, dtype=object)
+
+
 def _time_reason(cell, code: int, timezone: str, fmt_name: str) -> str:
     shown = repr(str(cell)[:60])
     if code == 2:
@@ -522,7 +542,7 @@ def _readings(table: _Table, feed, config, origin, now, result: Parsed) -> Parse
     # candidate readings: (row index, variable, unit, raw cell)
     if feed.layout == "long":
         r_idx = np.arange(n)
-        variable = np.array([v.strip() for v in cols[index["variable"]]], dtype=object)
+        variable = _canonical_variables(cols[index["variable"]], getattr(feed, "variable_names", {}))
         unit = np.array([u.strip() for u in cols[index["unit"]]], dtype=object)
         cells = column(index["value"])
         col_names = np.full(n, feed.value_column, dtype=object)

@@ -165,3 +165,16 @@ def test_weather_forecast_rows_carry_their_issue_time(config):
     assert set(p.issued_ns.tolist()) == {utc("2026-07-01 00:00")}
     assert sorted(set(p.time_ns.tolist())) == [utc("2026-07-01 01:00"), utc("2026-07-01 02:00")]
     assert set(p.station) == {"FW-MET"}
+
+
+def test_variable_names_of_the_feed_and_case_variants_map_to_canonical_names(config):
+    feed = dataclasses.replace(config.feed("lab"), variable_names={"NO3-N": "nitrate", "Chl-a": "chlorophyll_a"})
+    payload = ("sampled_at,site,variable,value,unit\n"
+               "2026-07-01 10:00,FW-LAB,no3-n,0.2,mg/L\n"
+               "2026-07-01 10:00,FW-LAB,Chl-a,7,ug/L\n"
+               "2026-07-01 10:00,FW-LAB,Total Phosphorus,30,ug/L\n"
+               "2026-07-01 10:00,FW-LAB,SRP,4,ug/L\n"
+               "2026-07-01 10:00,FW-LAB,chlorophyll,4,ug/L\n").encode()
+    p = parse_payload(payload, feed, config, now=NOW)
+    assert list(p.variable) == ["nitrate", "chlorophyll_a", "total_phosphorus", "srp"]
+    assert p.rejected[0].reason.startswith("unknown variable 'chlorophyll'")
