@@ -66,7 +66,7 @@ def push(feed_name: str):
     mimetype = (request.mimetype or "").lower()
     if mimetype not in _FORMATS:
         return _error(415, f"expected Content-Type application/json or text/csv, got {mimetype or 'none'!r}")
-    body = request.get_data(cache=False)
+    body = request.stream.read(MAX_BODY_BYTES + 1)  # bounded even for a chunked body without a length
     if len(body) > MAX_BODY_BYTES:
         return _error(413, f"a batch may be at most {MAX_BODY_BYTES} bytes; split it")
     if not body.strip():
