@@ -39,7 +39,7 @@ QC_KEYS = (
     "climatology_min", "climatology_max",
     "spike_suspect", "spike_fail", "rate_of_change_per_h",
     "flat_line_tolerance", "flat_line_suspect_h", "flat_line_fail_h",
-    "drift_suspect_fraction",
+    "drift_suspect_fraction", "threshold_scale_level",
 )
 
 
