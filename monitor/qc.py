@@ -12,6 +12,10 @@ U.S. IOOS 2018; *… of Dissolved Nutrients Observations*, 2015):
   ``|V − ref| > spike_fail`` → 4, ``> spike_suspect`` → 3; the first and
   last points are not evaluated (2);
 * rate of change: ``|ΔV| / Δt > rate_of_change_per_h`` → 3 (first point 2);
+* (Bloomline's extension) with ``threshold_scale_level`` L the spike and
+  rate-of-change thresholds are multiplied by ``max(1, level / L)``: a
+  fluorometer's noise grows with the signal, so fixed thresholds that fit
+  clear water would flag ordinary bloom-time noise as suspect;
 * flat line: every value in the trailing ``flat_line_suspect_h`` (resp.
   ``flat_line_fail_h``) hours within ``flat_line_tolerance`` of the present
   one → 3 (resp. 4);
@@ -58,7 +62,7 @@ _NS_PER_H = 3_600_000_000_000
 _NONE = dict.fromkeys(
     ("sensor_min", "sensor_max", "user_min", "user_max", "climatology_min", "climatology_max",
      "spike_suspect", "spike_fail", "rate_of_change_per_h", "flat_line_tolerance",
-     "flat_line_suspect_h", "flat_line_fail_h", "drift_suspect_fraction"))
+     "flat_line_suspect_h", "flat_line_fail_h", "drift_suspect_fraction", "threshold_scale_level"))
 
 
 def _d(**kw) -> dict:
@@ -66,13 +70,16 @@ def _d(**kw) -> dict:
 
 
 DEFAULTS: dict[str, dict[str, float | None]] = {
-    "chlorophyll_fluorescence": _d(sensor_min=0.0, sensor_max=400.0, user_min=0.0, user_max=300.0,
+    # Fluorometers report small negative values near zero (offset noise): below zero is suspect,
+    # below -5 µg/L a failure (common practice).
+    "chlorophyll_fluorescence": _d(sensor_min=-5.0, sensor_max=400.0, user_min=0.0, user_max=300.0,
                                    spike_suspect=10.0, spike_fail=25.0, rate_of_change_per_h=40.0,
                                    flat_line_tolerance=1e-3, flat_line_suspect_h=6.0, flat_line_fail_h=12.0,
-                                   drift_suspect_fraction=0.5),
-    "phycocyanin": _d(sensor_min=0.0, sensor_max=300.0, user_min=0.0, user_max=200.0,
+                                   drift_suspect_fraction=0.5, threshold_scale_level=20.0),
+    "phycocyanin": _d(sensor_min=-5.0, sensor_max=300.0, user_min=0.0, user_max=200.0,
                       spike_suspect=8.0, spike_fail=20.0, rate_of_change_per_h=30.0,
-                      flat_line_tolerance=1e-3, flat_line_suspect_h=6.0, flat_line_fail_h=12.0),
+                      flat_line_tolerance=1e-3, flat_line_suspect_h=6.0, flat_line_fail_h=12.0,
+                      threshold_scale_level=15.0),
     "water_temperature": _d(sensor_min=-5.0, sensor_max=50.0, user_min=-1.0, user_max=35.0,
                             spike_suspect=1.5, spike_fail=4.0, rate_of_change_per_h=2.0,
                             flat_line_tolerance=1e-3, flat_line_suspect_h=6.0, flat_line_fail_h=12.0),
@@ -166,19 +173,32 @@ def _neighbours_close(times_h: np.ndarray, max_gap_h: float) -> tuple[np.ndarray
     return before, after
 
 
+def _scale(level: np.ndarray, scale_level) -> np.ndarray | float:
+    """Threshold multiplier max(1, |level| / scale_level); 1 when no scale level is set."""
+    if scale_level is None:
+        return 1.0
+    return np.maximum(1.0, np.abs(level) / float(scale_level))
+
+
 def spike(values: np.ndarray, suspect=None, fail=None, times_h: np.ndarray | None = None,
-          max_gap_h: float = MAX_NEIGHBOUR_GAP_H) -> np.ndarray:
+          max_gap_h: float = MAX_NEIGHBOUR_GAP_H, scale_level=None) -> np.ndarray:
     """QARTOD spike test (U.S. IOOS 2018, DO manual test 8).
 
     Reference = mean of the previous and the next value; ``|V − ref| >
     fail`` → 4, ``> suspect`` → 3, else 1; points without both neighbours
     (first, last, or next to a gap longer than ``max_gap_h`` [h]) → 2.
+
+    With ``scale_level`` [unit] (Bloomline's extension for fluorometers,
+    whose noise grows with the signal) both thresholds are multiplied by
+    ``max(1, |ref| / scale_level)``.
     """
     v = np.asarray(values, dtype=float)
     flags = np.full(v.shape, NOT_EVALUATED, dtype=np.uint8)
     if v.size < 3 or (suspect is None and fail is None):
         return flags
-    dev = np.abs(v[1:-1] - 0.5 * (v[:-2] + v[2:]))
+    ref = 0.5 * (v[:-2] + v[2:])
+    factor = _scale(ref, scale_level)
+    dev = np.abs(v[1:-1] - ref) / factor
     inner = np.full(dev.shape, PASS, dtype=np.uint8)
     if suspect is not None:
         inner[dev > suspect] = SUSPECT
@@ -192,10 +212,12 @@ def spike(values: np.ndarray, suspect=None, fail=None, times_h: np.ndarray | Non
 
 
 def rate_of_change(values: np.ndarray, times_h: np.ndarray, threshold_per_h=None,
-                   max_gap_h: float = MAX_NEIGHBOUR_GAP_H) -> np.ndarray:
+                   max_gap_h: float = MAX_NEIGHBOUR_GAP_H, scale_level=None) -> np.ndarray:
     """QARTOD rate of change test (U.S. IOOS 2018, DO manual test 9): ``|ΔV|/Δt`` [unit/h] above the threshold → 3.
 
-    The first point, and a point after a gap longer than ``max_gap_h`` [h], → 2.
+    The first point, and a point after a gap longer than ``max_gap_h`` [h],
+    → 2. With ``scale_level`` the threshold is multiplied by ``max(1,
+    mean(|V_n|, |V_n-1|) / scale_level)``.
     """
     v = np.asarray(values, dtype=float)
     t = np.asarray(times_h, dtype=float)
@@ -204,6 +226,7 @@ def rate_of_change(values: np.ndarray, times_h: np.ndarray, threshold_per_h=None
         return flags
     dt_h = np.diff(t)
     rate = np.abs(np.diff(v)) / np.where(dt_h > 0, dt_h, np.nan)
+    rate = rate / _scale(0.5 * (np.abs(v[1:]) + np.abs(v[:-1])), scale_level)
     inner = np.where(rate > threshold_per_h, SUSPECT, PASS).astype(np.uint8)
     inner[~(dt_h <= max_gap_h)] = NOT_EVALUATED
     flags[1:] = inner
@@ -357,8 +380,8 @@ def run_qc(times_ns: np.ndarray, values: np.ndarray, settings: Mapping[str, floa
     cols = [
         gross_range(vp, s.get("sensor_min"), s.get("sensor_max"), s.get("user_min"), s.get("user_max")),
         climatology(vp, *_climatology_span(t_ns[present], s)),
-        spike(vp, s.get("spike_suspect"), s.get("spike_fail"), th),
-        rate_of_change(vp, th, s.get("rate_of_change_per_h")),
+        spike(vp, s.get("spike_suspect"), s.get("spike_fail"), th, scale_level=s.get("threshold_scale_level")),
+        rate_of_change(vp, th, s.get("rate_of_change_per_h"), scale_level=s.get("threshold_scale_level")),
         flat_line(vp, th, s.get("flat_line_tolerance"), s.get("flat_line_suspect_h"), s.get("flat_line_fail_h")),
     ]
     if lab_times_ns is not None and len(lab_times_ns):

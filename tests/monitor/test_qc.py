@@ -158,3 +158,16 @@ def test_seasonal_climatology_uses_the_month_of_each_reading():
     settings = {**qc.thresholds("water_temperature"), "climatology_months": months}
     _, digits = qc.run_qc(t, values, settings)
     assert digits[:, qc.TESTS.index("climatology")].tolist() == [3, 1, 3]
+
+
+def test_threshold_scale_level_widens_spike_and_rate_thresholds_at_high_levels():
+    # at 60 µg/L with scale level 20 the thresholds are three times wider
+    values = np.array([60.0, 60.0, 75.0, 60.0, 60.0])
+    hours = np.arange(5) * 0.25
+    assert qc.spike(values, 10.0, 25.0, hours).tolist() == [2, 1, 3, 1, 2]  # neighbours' dev 7.5 < 10
+    assert qc.spike(values, 10.0, 25.0, hours, scale_level=20.0).tolist() == [2, 1, 1, 1, 2]
+    assert qc.rate_of_change(values, hours, 40.0).tolist() == [2, 1, 3, 3, 1]  # 15 in 15 min = 60/h
+    assert qc.rate_of_change(values, hours, 40.0, scale_level=20.0).tolist() == [2, 1, 1, 1, 1]
+    # below the scale level nothing changes: the QARTOD worked case stands
+    low = np.array([1, 1, 5, 1, 1, 1, 1.2, 1])
+    assert qc.spike(low, 1.5, 3.0, scale_level=20.0).tolist() == [2, 3, 4, 3, 1, 1, 1, 2]
