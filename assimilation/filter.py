@@ -80,7 +80,10 @@ class FilterConfig:
     a gain of 1. state_floor_ugL [µg/L]: concentrations are floored here
     before taking logs. model_error_log_sd_per_d [log units per sqrt(day)]:
     random-walk perturbation of the model state during the forecast
-    (stochastic model error; 0 switches it off).
+    (stochastic model error; 0 switches it off). The default 0.1 (10 % per
+    day) stands for the structural error of a box model against a real
+    water body, without which the ensemble grows overconfident and stops
+    following the readings (common practice; e.g. Evensen 2009, ch. 4).
     """
 
     members: int = 60
@@ -100,7 +103,7 @@ class FilterConfig:
     parameter_log_sd: float = 0.2
     gain_log_sd: float = 0.2
     state_floor_ugL: float = 1e-3
-    model_error_log_sd_per_d: float = 0.0
+    model_error_log_sd_per_d: float = 0.1
 
     def __post_init__(self):
         if int(self.members) != self.members or self.members < 2:

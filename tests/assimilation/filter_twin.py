@@ -23,9 +23,9 @@ CYANO = 1  # index of the cyanobacteria group in parameters.default_groups()
 TRUE_GROWTH_FACTOR = 1.25
 SENSOR_GAINS = (1.15, 0.9)  # true gains of the two fluorescence sensors
 #: Filter settings of a perfect-model twin: no inflation of the model state
-#: (there is no model error to make up for); everything else, including the
+#: and no stochastic model error (there is none to make up for); everything else, including the
 #: parameters' relaxation and spread floor, is FilterConfig's default.
-TWIN_SETTINGS = dict(inflation=1.0, relaxation_to_prior_spread=0.0)
+TWIN_SETTINGS = dict(inflation=1.0, relaxation_to_prior_spread=0.0, model_error_log_sd_per_d=0.0)
 
 
 def spec():
