@@ -353,13 +353,29 @@ def _lab_series(conn: Connection, config, station_id: str, t0: int, t1: int) -> 
     return t[order], np.concatenate(values)[order]
 
 
-def _qualify(conn, config, station, variable, settings, t, v, t_min, t_max):
-    """QC of the series (t, v); lab chlorophyll-a is fetched for a fluorometer."""
-    lab_t = lab_v = None
-    if variable == "chlorophyll_fluorescence" and settings.get("drift_suspect_fraction") is not None:
-        hold = int((qc.DRIFT_HOLD_DAYS * 24 + qc.DRIFT_MATCH_WINDOW_H) * _NS_PER_H)
-        lab_t, lab_v = _lab_series(conn, config, station, t_min - hold, t_max + int(qc.DRIFT_MATCH_WINDOW_H * _NS_PER_H))
-    return qc.run_qc(t, v, settings, lab_t, lab_v)
+def _qualify(conn, config, station, variable, settings, t, v, t_min, t_max, source):
+    """QC of the series (t, v) [ns, value].
+
+    For a fluorometer the drift check needs the lab chlorophyll-a that can
+    bear on readings in [t_min, t_max] (with the baseline before them) and
+    the sensor readings around those samples: the stored ones of the same
+    source, overridden by the series being qualified.
+    """
+    if variable != "chlorophyll_fluorescence" or settings.get("drift_suspect_fraction") is None:
+        return qc.run_qc(t, v, settings)
+    w = int(qc.DRIFT_MATCH_WINDOW_H * _NS_PER_H)
+    # the comparison governing a reading, its previous one and their baselines
+    back = int((2 * qc.DRIFT_HOLD_DAYS + qc.DRIFT_BASELINE_DAYS) * 24 * _NS_PER_H) + 2 * w
+    # a later sample within the hold time can confirm (or not) the comparison before it
+    lab_t, lab_v = _lab_series(conn, config, station, t_min - back,
+                               t_max + int(qc.DRIFT_HOLD_DAYS * 24 * _NS_PER_H) + 2 * w)
+    if lab_t.size == 0:
+        return qc.run_qc(t, v, settings)
+    around = _stored(conn, station, variable, source, int(lab_t.min()) - w, int(lab_t.max()) + w)
+    other = ~np.isin(around.t, t)
+    d_t = np.concatenate([around.t[other], t])
+    d_v = np.concatenate([around.value[other], v])
+    return qc.run_qc(t, v, settings, lab_t, lab_v, d_t, d_v)
 
 
 def _update_neighbours(conn: Connection, stored: _Stored, flag, digits, in_range: np.ndarray) -> None:
@@ -426,7 +442,7 @@ def _store_readings(conn: Connection, config, parsed: Parsed, source: str, batch
         v_all = np.concatenate([stored_values, v_new[keep]])
         order = np.argsort(t_all, kind="stable")
         flag_s, digits_s = _qualify(conn, config, station, variable, settings, t_all[order], v_all[order],
-                                    t_min, t_max)
+                                    t_min, t_max, source)
         flag_all = np.empty_like(flag_s)
         digits_all = np.empty_like(digits_s)
         flag_all[order] = flag_s
@@ -498,11 +514,16 @@ def _requalify_fluorometers(conn: Connection, config, lab_station: str, t0: int,
         if settings.get("drift_suspect_fraction") is None:
             continue
         margin = int(qc.context_hours(settings) * _NS_PER_H)
-        lo, hi = t0 - window, t1 + hold + window
+        # comparisons at [t0, t1] and, through the baseline, those up to DRIFT_BASELINE_DAYS later
+        # readings after the previous comparison (its confirmation may change) up to those after the
+        # comparisons whose baseline includes [t0, t1]
+        lo = t0 - hold - 2 * window
+        hi = t1 + int(qc.DRIFT_BASELINE_DAYS * 24 * _NS_PER_H) + 2 * hold + window
         stored = _stored(conn, station, "chlorophyll_fluorescence", None, lo - margin, hi + margin)
         for source in dict.fromkeys(stored.source.tolist()):
             g = stored.subset(stored.source == source)  # in time order, as queried
-            flag, digits = _qualify(conn, config, station, "chlorophyll_fluorescence", settings, g.t, g.value, lo, hi)
+            flag, digits = _qualify(conn, config, station, "chlorophyll_fluorescence", settings, g.t, g.value,
+                                    lo, hi, source)
             _update_neighbours(conn, g, flag, digits, (g.t >= lo) & (g.t <= hi))
 
 

@@ -163,7 +163,8 @@ def test_drift_against_lab_chlorophyll_is_applied_whichever_arrives_first(tmp_pa
             rows.append((t, 10.0 + 0.001 * len(rows) % 0.5, 1.0 + 0.0001 * len(rows), 18 + 0.0001 * len(rows)))
     lab = (b"sampled_at,site,variable,value,unit\n"
            b"2026-07-02 12:00,FW-LAB,chlorophyll_a,9.8,ug/L\n"     # agrees
-           b"2026-07-05 12:00,FW-LAB,chlorophyll_a,4.0,ug/L\n")    # the sensor reads 2.5 × the lab value
+           b"2026-07-05 12:00,FW-LAB,chlorophyll_a,4.0,ug/L\n"     # the sensor reads 2.5 × the lab value
+           b"2026-07-07 12:00,FW-LAB,chlorophyll_a,4.1,ug/L\n")    # and again: drift, not one odd sample
     outcomes = []
     for order in ("buoy-first", "lab-first"):
         folder = tmp_path / order

@@ -78,3 +78,32 @@ def _forecast_count(engine) -> int:
 
     with engine.connect() as conn:
         return conn.execute(select(func.count()).select_from(driver_forecasts)).scalar()
+
+
+def test_qc_finds_the_documented_spikes_and_the_fouling_drift(demo):
+    from monitor import qc
+
+    _, engine, _ = demo
+    frame = readings_frame(engine, max_flag=9)
+    # truth/events.csv lists every spike written into the buoy files (local times, UTC+2)
+    events = pd.read_csv(SAMPLES / "truth" / "events.csv")
+    spikes = events[events["kind"] == "spike"].copy()
+    spikes["variable"] = spikes["detail"].map({"chl_fluor": "chlorophyll_fluorescence", "pc": "phycocyanin",
+                                               "temp": "water_temperature"})
+    spikes["time_utc"] = (pd.to_datetime(spikes["start_local"]) - pd.Timedelta(hours=2)).dt.tz_localize("UTC")
+    hit = spikes.merge(frame, left_on=["site", "variable", "time_utc"],
+                       right_on=["station_id", "variable", "time_utc"])
+    caught = (hit["qc_flag"] >= 3).groupby(hit["variable"]).mean()
+    assert (caught > 0.85).all(), caught.to_dict()  # the misses are drops to near zero in clear water
+    # README: CR-MR's chl fluorometer fouls from 2026-09-03 until it is cleaned on 2026-09-24
+    from sqlalchemy import select
+
+    from monitor.schema import readings
+
+    with engine.connect() as conn:
+        rows = conn.execute(select(readings.c.station_id, readings.c.time_utc, readings.c.qc_tests)
+                            .where(readings.c.variable == "chlorophyll_fluorescence")).fetchall()
+    drift = [(s, t) for s, t, tests in rows if tests[qc.TESTS.index("drift")] == "3"]
+    assert drift and {s for s, _ in drift} == {"CR-MR"}
+    assert min(t for _, t in drift).date() >= pd.Timestamp("2026-09-03").date()
+    assert max(t for _, t in drift).date() <= pd.Timestamp("2026-10-01").date()

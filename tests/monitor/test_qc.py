@@ -89,15 +89,17 @@ def test_run_qc_marks_missing_values_9_and_skips_them_as_neighbours():
     assert strings[3] == "121122"
 
 
-def test_drift_check_flags_a_fluorometer_that_reads_double_the_lab_value():
-    hours = np.arange(0, 24 * 20, 0.25)
+def test_drift_needs_two_successive_deviating_lab_comparisons():
+    hours = np.arange(0, 24 * 30, 0.25)
     sensor = np.full(hours.size, 10.0)
-    lab_t = np.array([24.0, 24.0 * 8])
-    lab_v = np.array([9.5, 5.0])  # week 1 agrees (5 %), week 2 the sensor reads 100 % high
-    flags = qc.drift(hours, sensor, lab_t, lab_v, suspect_fraction=0.5)
-    assert (flags[hours < 23] == 2).all()  # before the first comparison
-    assert (flags[(hours >= 24) & (hours < 24 * 8 - 1)] == 1).all()
-    assert (flags[(hours >= 24 * 8) & (hours <= 24 * 8 + 24 * 14)] == 3).all()
+    lab_t = np.array([1, 8, 15, 22]) * 24.0
+    one_odd = qc.drift(hours, sensor, lab_t, np.array([10.0, 5.0, 10.0, 10.0]), suspect_fraction=0.3)
+    assert set(one_odd[hours >= 23].tolist()) == {1}  # a single odd sample is not drift
+    two = qc.drift(hours, sensor, lab_t, np.array([10.0, 5.0, 5.0, 10.0]), suspect_fraction=0.3)
+    assert (two[hours < 23] == 2).all()  # before the first comparison
+    assert (two[(hours >= 24) & (hours < 24 * 8 - 1)] == 1).all()
+    assert (two[(hours >= 24 * 8) & (hours < 24 * 22 - 1)] == 3).all()  # both deviating samples' weeks
+    assert (two[hours >= 24 * 22] == 1).all()
 
 
 def test_drift_check_ignores_lab_samples_far_from_any_sensor_reading():
@@ -171,3 +173,16 @@ def test_threshold_scale_level_widens_spike_and_rate_thresholds_at_high_levels()
     # below the scale level nothing changes: the QARTOD worked case stands
     low = np.array([1, 1, 5, 1, 1, 1, 1.2, 1])
     assert qc.spike(low, 1.5, 3.0, scale_level=20.0).tolist() == [2, 3, 4, 3, 1, 1, 1, 2]
+
+
+def test_drift_is_judged_against_the_sensors_own_ratio_to_the_lab():
+    # a fluorometer reading 1.3 × the lab value throughout is not drifting (its own baseline);
+    # a rise to 1.69 × (+30 % on that baseline, e.g. fouling) at two samples is
+    hours = np.arange(0, 24 * 50, 0.25)
+    lab_t = np.arange(1, 7) * 24.0 * 7  # weekly samples
+    lab_v = np.full(6, 10.0)
+    sensor = np.full(hours.size, 13.0)
+    sensor[hours >= lab_t[3] - 2] = 16.9
+    flags = qc.drift(hours, sensor, lab_t, lab_v, suspect_fraction=0.25)
+    assert (flags[(hours >= lab_t[0]) & (hours < lab_t[3] - 2)] == 1).all()
+    assert (flags[hours >= lab_t[3]] == 3).all()
