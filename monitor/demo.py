@@ -85,11 +85,16 @@ def _progress(iterable, label: str, quiet: bool, length: int | None = None):
 
 
 class _NullBar:
+    """A progress bar that shows nothing (for ``--json``)."""
+
     def __init__(self, iterable):
-        self.iterable = iterable
+        self.iterable = iterable if iterable is not None else ()
 
     def __enter__(self):
-        return self.iterable
+        return self
+
+    def __iter__(self):
+        return iter(self.iterable)
 
     def __exit__(self, *exc):
         return False

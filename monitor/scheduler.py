@@ -38,7 +38,7 @@ def build_scheduler(service: Service, scheduler=None):
     hour, minute = (int(x) for x in cfg.cycle_at_utc.split(":"))
 
     def ingest():
-        results = service.ingest()
+        results = service.poll_feeds()
         if results:
             log.info("ingested %d batch(es): %d readings accepted, %d rejected", len(results),
                      sum(r.accepted for r in results), sum(r.rejected for r in results))
@@ -73,9 +73,12 @@ def run_service(config: Config, *, with_web: bool = True) -> None:
         thread.start()
         log.info("status page on http://%s:%d/", config.service.host, config.service.port)
     scheduler = build_scheduler(service)
+    subscriptions = service.start_subscriptions()
     try:
         scheduler.start()
     except (KeyboardInterrupt, SystemExit):
         pass
     finally:
+        for sub in subscriptions:
+            sub.stop()
         service.close()

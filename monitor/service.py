@@ -17,6 +17,7 @@ from sqlalchemy.engine import Engine
 from monitor import cycle, notify, store, subscriptions
 from monitor.config import Config
 from monitor.db import open_store
+from monitor.feeds import poll_due, start_mqtt_feeds
 from monitor.ingest import BatchResult, ingest_all
 from monitor.timeutil import now_utc
 
@@ -32,6 +33,7 @@ class Service:
         self.transport = transport if transport is not None else notify.transport_from_config(config)
         self.clock = clock
         self._dask = None
+        self._pull_states: dict = {}
         store.sync_config(self.engine, config)
         subscriptions.sync_from_config(self.engine, config, clock())
 
@@ -39,6 +41,14 @@ class Service:
     def ingest(self, *, progress=None) -> list[BatchResult]:
         """Ingest every new file of the csv-folder feeds; a bad file never stops the others."""
         return ingest_all(self.engine, self.config, progress=progress, now=self.clock())
+
+    def poll_feeds(self) -> list[BatchResult]:
+        """One scheduled round: new drop-folder files and the HTTP pulls that are due."""
+        return poll_due(self.engine, self.config, states=self._pull_states, now=self.clock())
+
+    def start_subscriptions(self) -> list:
+        """Start the MQTT subscriptions; each batch is stored as it arrives. Stop them with ``.stop()``."""
+        return start_mqtt_feeds(self.engine, self.config)
 
     # ------------------------------------------------------------------ cycles
     def run_cycles(self, analysis: dt.datetime, *, only: Iterable[str] | None = None,
