@@ -136,6 +136,7 @@ driver_forecasts = Table(
     Column("source", String(100), nullable=False),
     Column("batch_id", Integer, ForeignKey("ingest_batches.id"), nullable=False),
     UniqueConstraint("station_id", "variable", "issued_utc", "valid_utc", "source"),
+    Index("ix_driver_forecasts_station_issued", "station_id", "issued_utc"),
 )
 
 checkpoints = Table(

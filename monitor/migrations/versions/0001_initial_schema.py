@@ -2,7 +2,7 @@
 
 Revision ID: 0001
 Revises: 
-Create Date: 2026-12-01 23:58:44.085249
+Create Date: 2026-12-02 00:57:32.651908
 """
 from alembic import op
 import sqlalchemy as sa
@@ -123,6 +123,9 @@ def upgrade() -> None:
     sa.PrimaryKeyConstraint('id', name=op.f('pk_driver_forecasts')),
     sa.UniqueConstraint('station_id', 'variable', 'issued_utc', 'valid_utc', 'source', name=op.f('uq_driver_forecasts_station_id_variable_issued_utc_valid_utc_source'))
     )
+    with op.batch_alter_table('driver_forecasts', schema=None) as batch_op:
+        batch_op.create_index('ix_driver_forecasts_station_issued', ['station_id', 'issued_utc'], unique=False)
+
     op.create_table('forecast_runs',
     sa.Column('id', sa.Integer(), autoincrement=True, nullable=False),
     sa.Column('water_body_id', sa.String(length=64), nullable=False),
@@ -206,6 +209,9 @@ def downgrade() -> None:
 
     op.drop_table('outbox')
     op.drop_table('forecast_runs')
+    with op.batch_alter_table('driver_forecasts', schema=None) as batch_op:
+        batch_op.drop_index('ix_driver_forecasts_station_issued')
+
     op.drop_table('driver_forecasts')
     op.drop_table('checkpoints')
     op.drop_table('basins')
