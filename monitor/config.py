@@ -207,6 +207,7 @@ class FilterSettings:
     seed: int = 20260501
     window_days: float = 1.0
     assimilate_suspect: bool = False
+    spin_up_cycles: int = 3  # cycles after a cold start before alert rules are evaluated
     options: Mapping[str, Any] = field(default_factory=dict)  # passed to assimilation FilterConfig
 
 
@@ -612,13 +613,16 @@ def parse_config(data: Mapping[str, Any], path: Path | None = None) -> Config:
                       starttls=sm.get("starttls", bool, False), timeout_s=sm.positive("timeout_s", 10.0))
     sm.finish()
     fr = top.sub("filter")
-    known = {"members", "method", "seed", "window_days", "assimilate_suspect"}
+    known = {"members", "method", "seed", "window_days", "assimilate_suspect", "spin_up_cycles"}
     options = {k: v for k, v in fr.table.items() if k not in known}
     for k in options:
         fr.used.add(k)
     filt = FilterSettings(members=fr.get("members", int, 60), method=fr.choice("method", FILTER_METHODS, "sqrt"),
                           seed=fr.get("seed", int, 20260501), window_days=fr.positive("window_days", 1.0),
-                          assimilate_suspect=fr.get("assimilate_suspect", bool, False), options=options)
+                          assimilate_suspect=fr.get("assimilate_suspect", bool, False),
+                          spin_up_cycles=fr.get("spin_up_cycles", int, 3), options=options)
+    if filt.spin_up_cycles < 0:
+        raise fr.error("spin_up_cycles", f"expected 0 or more, got {filt.spin_up_cycles}")
     if filt.members < 3:
         raise fr.error("members", f"expected at least 3 ensemble members, got {filt.members}")
     fr.finish()

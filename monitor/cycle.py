@@ -314,19 +314,28 @@ def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysi
 
 
 def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.datetime | None = None) -> dict:
-    """Store a cycle's checkpoint and forecast, then evaluate the alert rules; returns a summary."""
+    """Store a cycle's checkpoint and forecast, then evaluate the alert rules; returns a summary.
+
+    After a cold start the alert rules wait ``spin_up_cycles`` cycles, while
+    the ensemble's first-guess spread settles on the readings.
+    """
     wb = config.water_body(outputs.water_body_id)
     analysis = from_epoch_days(outputs.analysis_d)
+    warm = store.count_forecast_runs(engine, wb.id, before=analysis) >= config.filter.spin_up_cycles
+    message = outputs.message
+    if outputs.forecasts and not warm:
+        message = (message + "; " if message else "") + \
+            f"spin-up: alert rules start after {config.filter.spin_up_cycles} cycles"
     if outputs.checkpoint is not None:
         store.save_checkpoint(engine, wb.id, analysis, outputs.checkpoint, now=now)
-    run_id = store.save_forecast_run(engine, wb.id, analysis, outputs.status, outputs.message,
+    run_id = store.save_forecast_run(engine, wb.id, analysis, outputs.status, message,
                                      outputs.diagnostics, forecast_rows(outputs), now=now)
     events = []
-    if outputs.forecasts:
+    if outputs.forecasts and warm:
         observed = latest_observed(engine, config, wb, analysis)
         events = alerts.evaluate_run(engine, config, wb.id, run_id, observed, now or analysis)
     return {"water_body": wb.id, "analysis_utc": analysis.isoformat(), "status": outputs.status,
-            "message": outputs.message, "run_id": run_id, "events": events}
+            "message": message, "run_id": run_id, "events": events}
 
 
 def run_cycle(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,

@@ -11,7 +11,7 @@ from __future__ import annotations
 import datetime as dt
 from typing import Iterable
 
-from sqlalchemy import delete, insert, select, update
+from sqlalchemy import delete, func, insert, select, update
 from sqlalchemy.engine import Engine
 
 from monitor import schema
@@ -113,3 +113,13 @@ def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datet
         if rows:
             conn.execute(insert(vals), rows)
     return run_id
+
+
+def count_forecast_runs(engine: Engine, water_body_id: str, *, before: dt.datetime | None = None) -> int:
+    """How many forecast runs of a water body are stored (with an analysis time before ``before``)."""
+    runs = schema.forecast_runs
+    q = select(func.count()).select_from(runs).where(runs.c.water_body_id == water_body_id)
+    if before is not None:
+        q = q.where(runs.c.analysis_utc < before)
+    with engine.connect() as conn:
+        return int(conn.execute(q).scalar())
