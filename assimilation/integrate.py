@@ -10,7 +10,10 @@ takes up N and P in a fixed ratio) stay stoichiometric:
 
 * every process flux is multiplied by a weight c'/c* of the species it
   consumes (c' the new value, c* the predictor); growth, which consumes N
-  and P, by q = (N'/N*)·(P'/P*);
+  and P, by q = (N'/N*)·(P'/P*); the growth of a nitrogen-fixing group
+  consumes DIN only for its DIN share, the rest of its N comes from N2 (a
+  source of total N weighted with its growth, so fixed N follows the
+  stoichiometry exactly);
 * losses of a group (mortality, settling, outflow) and the outflow and
   denitrification of N or the outflow of P consume only that species: their
   weights make the update for that species linear-implicit;
@@ -21,7 +24,8 @@ takes up N and P in a fixed ratio) stay stoichiometric:
   (acyclic) network, as many vectorised sweeps as the longest flow path.
 
 Every process is scaled as a whole, so total N and total P are conserved to
-round-off apart from the true sources and sinks, all concentrations stay
+round-off apart from the true sources and sinks (inflow, outflow, settling,
+non-recycled mortality, denitrification, N fixation, sediment release), all concentrations stay
 positive for any step, and a steady state of the equations is a fixed point
 of the scheme (the chemostat checks rely on this). The predictor is the
 explicit Euler step where it keeps every concentration of a basin above
@@ -31,7 +35,11 @@ changes within an hour far more than the state does (sunrise, sunset).
 
 Accuracy: second order; at dt = 1 h the daily states of 60 summer days in
 a 3-basin reservoir agree with solve_ivp (LSODA, rtol 1e-8) to within
-max |Δ|/(|ref| + 0.1 µg/L) ≈ 0.03 (tests/assimilation/test_model_vs_solve_ivp.py).
+max |Δ|/(|ref| + 0.1 µg/L) ≈ 0.03 without nitrogen fixers; with the default
+(fixing) cyanobacteria the shallow arm's DIN turns over within an hour in
+daylight and SRP crashes at the bloom peak, and the hourly difference
+reaches 0.36 (0.13 at 30 min, 0.034 at 15 min)
+(tests/assimilation/test_model_vs_solve_ivp.py).
 Steps far longer than the turnover time of a depleted nutrient (12–24 h in
 a chemostat with N ≪ K_N) stay positive and conservative but can oscillate
 about the steady state; keep dt ≤ a few hours.
@@ -87,9 +95,16 @@ class _PatankarUpdate:
     and, with its weight already applied, from upstream basins; the parts
     that do not depend on it are computed once.
 
-    A_g' = (A_g + h·(q·G_g + source)) / (1 + h·(losses + outflux)/A_g*) is
-    linear in q; N' and P' are (alpha − beta·q)·c*/(c* + h·outflux), so q is
-    the root of q = Π (alpha − beta·q)/(c* + h·outflux) over N and P.
+    Growth is two processes: growth on DIN (G − F, consumes N and P, weight
+    q = (N'/N*)·(P'/P*)) and growth on fixed N2 (F, consumes P only, weight
+    y = P'/P*). A_g' = (A_g + h·(q·(G − F)_g + y·F_g + source)) /
+    (1 + h·(losses + outflux)/A_g*) is linear in q and y; with x = N'/N*,
+    x·d_N = a_N − b_N·q + c_N·y and y·d_P = a_P − b_P·q − e_P·y (d = c* +
+    h·own losses, c_N the N that recycled mortality of the new fixed growth
+    returns). Eliminating y = (a_P − b_P·q)/D, D = d_P + e_P, leaves
+    q·d_N·D² = (a_P − b_P·q)·((a_N·D + c_N·a_P) − (b_N·D + c_N·b_P)·q), the
+    form solved by :func:`_growth_weight`. Without fixers F = 0 and this is
+    the single growth weight of Broekhuizen et al. (2008).
     """
 
     def __init__(self, C, Cstar, f, outflux, h, co):
@@ -97,26 +112,40 @@ class _PatankarUpdate:
         self.A = C[..., 2:]
         A_star = np.maximum(Cstar[..., 2:], _TINY)
         self.denom = 1.0 + h * (f.mortality + f.settling + outflux[..., 2:]) / A_star
-        self.slope_A = h * f.growth / self.denom
         # recycled mortality returns to N and P with the weight A_g'/A_g* of its donor
         self.recycled_w = h * co.recycled * f.mortality / A_star
-        ret1 = (self.recycled_w * self.slope_A).sum(axis=-1, keepdims=True)
-        uptake = h * f.growth.sum(axis=-1, keepdims=True)
+        self.fixing = bool(np.ndim(f.fixed_growth))
+        din_growth = f.growth - f.fixed_growth if self.fixing else f.growth
+        self.slope_din = h * din_growth / self.denom
+        # net consumption per unit weight: u_din ≥ 0 (growth on DIN), u_fix ≥ 0 (P of growth on N2),
+        # v_fix ≥ 0 (N returned by the recycled mortality of the new fixed growth)
+        u_din = (h * din_growth - self.recycled_w * self.slope_din).sum(axis=-1, keepdims=True)
         self.stoich = np.array([co.n_to_chl, co.p_to_chl])
+        a_n, a_p = co.n_to_chl, co.p_to_chl
+        self.b_n, self.b_p = a_n * u_din, a_p * u_din
+        if self.fixing:
+            self.slope_fix = h * f.fixed_growth / self.denom
+            u_fix = (h * f.fixed_growth - self.recycled_w * self.slope_fix).sum(axis=-1, keepdims=True)
+            v_fix = (self.recycled_w * self.slope_fix).sum(axis=-1, keepdims=True)
+            self.c_n, self.e_p = a_n * v_fix, a_p * u_fix
+        else:
+            self.c_n = self.e_p = np.zeros_like(self.b_n)
         self.NP = C[..., :2].copy()
         if np.ndim(f.sediment_phosphorus):
             self.NP = self.NP + np.stack([np.zeros_like(f.sediment_phosphorus), h * f.sediment_phosphorus], -1)
-        beta = np.maximum(self.stoich * (uptake - ret1), 0.0)
         NP_star = Cstar[..., :2]
         # N and P consumed by their own processes (outflow, denitrification), weight c'/c*
         own_loss = outflux[..., :2]
         if np.ndim(f.denitrification):
             own_loss = own_loss + np.stack([f.denitrification, np.zeros_like(f.denitrification)], -1)
         d = NP_star + h * own_loss
-        # a nutrient that growth does not consume (no growth, e.g. at night) drops out of q
-        self.used = beta > 0
-        self.beta = np.where(self.used, beta, 0.0)
-        self.d = np.where(self.used, np.maximum(d, _TINY), 1.0)
+        # a nutrient that growth does not consume (no growth, e.g. at night) drops out of the weights:
+        # N when there is no growth on DIN, P when there is no growth at all
+        self.n_used = self.b_n > 0
+        self.p_used = (self.b_p + self.e_p) > 0
+        self.d_n = np.where(self.n_used, np.maximum(d[..., 0:1], _TINY), 1.0)
+        self.d_p = np.where(self.p_used, np.maximum(d[..., 1:2], _TINY), 1.0)
+        self.big_d = self.d_p + np.where(self.p_used, self.e_p, 0.0)
         self.shrink = np.where(d > 0, NP_star / np.where(d > 0, d, 1.0), 1.0)
         self.shape = np.broadcast_shapes(C.shape, f.growth.shape[:-1] + (C.shape[-1],))
 
@@ -125,10 +154,23 @@ class _PatankarUpdate:
         base_A = (self.A + h * source[..., 2:]) / self.denom
         ret0 = (self.recycled_w * base_A).sum(axis=-1, keepdims=True)
         alpha = self.NP + h * source[..., :2] + self.stoich * ret0
-        q = _growth_weight(np.where(self.used, alpha, 1.0), self.beta, self.d)
+        a_n, a_p = alpha[..., 0:1], alpha[..., 1:2]
+        D = self.big_d
+        ap = np.where(self.p_used, a_p, 1.0)
+        bp = np.where(self.p_used, self.b_p, 0.0)
+        alpha2 = np.where(self.n_used, a_n * D + self.c_n * ap, 1.0)
+        beta2 = np.where(self.n_used, self.b_n * D + self.c_n * bp, 0.0)
+        d2 = np.where(self.n_used, self.d_n * D * D, D)
+        q = _growth_weight(np.concatenate([alpha2, ap], -1), np.concatenate([beta2, bp], -1),
+                           np.concatenate([d2, np.ones_like(d2)], -1))
+        y = (ap - bp * q) / D
         out = np.empty(self.shape)
-        out[..., 2:] = base_A + q * self.slope_A
-        out[..., :2] = np.maximum(alpha - q * self.beta, 0.0) * self.shrink
+        A_new = base_A + q * self.slope_din
+        if self.fixing:
+            A_new = A_new + y * self.slope_fix
+        out[..., 2:] = A_new
+        out[..., 0:1] = np.maximum(a_n - q * self.b_n + y * self.c_n, 0.0) * self.shrink[..., 0:1]
+        out[..., 1:2] = np.maximum(a_p - q * self.b_p - y * self.e_p, 0.0) * self.shrink[..., 1:2]
         return out
 
 
@@ -136,7 +178,8 @@ def _mean_fluxes(f0, f1):
     return model.ProcessFluxes(0.5 * (f0.growth + f1.growth), 0.5 * (f0.mortality + f1.mortality),
                                0.5 * (f0.settling + f1.settling),
                                0.5 * (np.asarray(f0.sediment_phosphorus) + np.asarray(f1.sediment_phosphorus)),
-                               0.5 * (np.asarray(f0.denitrification) + np.asarray(f1.denitrification)))
+                               0.5 * (np.asarray(f0.denitrification) + np.asarray(f1.denitrification)),
+                               0.5 * (np.asarray(f0.fixed_growth) + np.asarray(f1.fixed_growth)))
 
 
 class _Network:

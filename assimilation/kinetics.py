@@ -9,6 +9,12 @@ All functions are elementwise and broadcast over (members, basins, groups).
 [3] Chapra, S.C. (1997) Surface Water-Quality Modeling. McGraw-Hill, ch. 33.
 [4] Bowie, G.L. et al. (1985) Rates, Constants, and Kinetics Formulations in
     Surface Water Quality Modeling, 2nd ed. US EPA, EPA/600/3-85/040.
+[5] Janse, J.H. (2005) Model studies on the eutrophication of shallow lakes
+    and ditches. PhD thesis, Wageningen University (PCLake); Hipsey, M.R. et
+    al. (2013) CAEDYM v3 Science Manual, University of Western Australia
+    (N limitation of fixers with a floor; formulation as recalled, from memory).
+[6] Hense, I. and Beckmann, A. (2006) Ecological Modelling 195:205–218
+    (slower growth as the energetic cost of N2 fixation).
 """
 from __future__ import annotations
 
@@ -38,6 +44,25 @@ def nutrient_limitation(nitrogen, phosphorus, k_n, k_p):
     nitrogen, phosphorus [µg/L]; k_n, k_p half-saturation [µg/L] (Chapra 1997 [3], ch. 33).
     """
     return np.minimum(monod(nitrogen, k_n), monod(phosphorus, k_p))
+
+
+def nitrogen_limitation_with_fixation(nitrogen, k_n, fixation_floor):
+    """Nitrogen limitation of a group that may fix N2, and its DIN share. [-]
+
+    nitrogen [µg N/L] dissolved inorganic N, k_n [µg N/L] half-saturation,
+    fixation_floor [-] the growth fraction a fixer keeps without DIN (0 for a
+    group that does not fix). Returns (f_n, din_share):
+    f_n = max(N/(K_N + N), floor) is the N term of Liebig's minimum, and
+    din_share = (N/(K_N + N)) / f_n the part of the group's N demand taken
+    from DIN; the rest, 1 − din_share, is fixed from dissolved N2. For a
+    non-fixer f_n is the Monod term and din_share is one. The floor form
+    of PCLake / CAEDYM [5], with the floor below one as the cost of
+    fixation [6].
+    """
+    f_din = monod(nitrogen, k_n)
+    f_n = np.maximum(f_din, fixation_floor)
+    din_share = np.where(f_n > 0, f_din / np.where(f_n > 0, f_n, 1.0), 1.0)
+    return f_n, din_share
 
 
 def growth_rate(mu_max_20, theta, temperature, f_light, nitrogen, phosphorus, k_n, k_p):

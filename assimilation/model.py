@@ -4,14 +4,20 @@ Per basin b (a well-mixed box, volume V_b, mean depth z_b) and group g,
 with N dissolved inorganic nitrogen, P soluble reactive phosphorus and A_g
 chlorophyll-a [µg/L]:
 
-    growth   mu_g = mu_max_g·theta_g^(T−20)·f_light,g·min(N/(K_N,g+N), P/(K_P,g+P))
-    dA_g/dt  = (mu_g − m_g(T) − v_g/z_b)·A_g                    + transport
-    dN/dt    = −a_N·Σ mu_g A_g + r·a_N·Σ m_g A_g − k_dn(T)·N     + transport
-    dP/dt    = −a_P·Σ mu_g A_g + r·a_P·Σ m_g A_g + J_sed(T)/z_b + transport
+    growth   mu_g = mu_max_g·theta_g^(T−20)·f_light,g·min(f_N,g, P/(K_P,g+P))
+    f_N,g    = max(N/(K_N,g+N), phi_g),  s_g = (N/(K_N,g+N)) / f_N,g
+    dA_g/dt  = (mu_g − m_g(T) − v_g/z_b)·A_g                        + transport
+    dN/dt    = −a_N·Σ s_g mu_g A_g + r·a_N·Σ m_g A_g − k_dn(T)·N     + transport
+    dP/dt    = −a_P·Σ mu_g A_g + r·a_P·Σ m_g A_g + J_sed(T)/z_b     + transport
 
 a_N, a_P nutrient per chlorophyll (carbon:chlorophyll × Redfield), r the
 recycled fraction, m_g temperature-dependent mortality + respiration, v_g
 settling velocity, J_sed internal phosphorus loading, k_dn denitrification.
+phi_g is the fixation floor of a nitrogen-fixing group (its
+``fixation_growth_fraction``, zero for other groups) and s_g the share of
+its N demand taken from DIN; the rest, a_N·Σ (1 − s_g) mu_g A_g, is fixed
+from dissolved N2, a source of total nitrogen (PCLake / CAEDYM floor form,
+:func:`kinetics.nitrogen_limitation_with_fixation`).
 f_light is Steele's curve averaged over the mixed depth with self-shading (:mod:`light`),
 transport the flow network (:mod:`hydraulics`). Methods and sources in
 :mod:`kinetics`, :mod:`light` and :mod:`parameters`; the scheme follows the
@@ -39,7 +45,9 @@ class Coefficients:
     """Model coefficients as broadcastable arrays (members, basins, groups).
 
     mu_max_20 and mortality_20 are (M or 1, 1, G) [1/d]; the other group
-    constants (G,); depth_m, volume_m3 (B,).
+    constants (G,); depth_m, volume_m3 (B,). fixation_floor (G,) [-] is the
+    fixation_growth_fraction of a nitrogen-fixing group and 0 otherwise;
+    any_fixing tells whether some group fixes.
     """
 
     mu_max_20: np.ndarray
@@ -62,6 +70,8 @@ class Coefficients:
     theta_sediment: float
     denitrification_20: float
     theta_denitrification: float
+    fixation_floor: np.ndarray
+    any_fixing: bool
 
 
 def coefficients(spec: ModelSpec, params: dict | None = None, n_members: int | None = None) -> Coefficients:
@@ -110,6 +120,8 @@ def coefficients(spec: ModelSpec, params: dict | None = None, n_members: int | N
         theta_sediment=spec.theta_sediment_release,
         denitrification_20=spec.denitrification_20_per_d,
         theta_denitrification=spec.theta_denitrification,
+        fixation_floor=np.array([g.fixation_growth_fraction if g.nitrogen_fixing else 0.0 for g in groups]),
+        any_fixing=any(g.nitrogen_fixing for g in groups),
     )
 
 
@@ -178,19 +190,31 @@ def light_factor(C: np.ndarray, co: Coefficients, par: np.ndarray, par_weights=N
     return light.steele_depth_average_mean(par[:, :, None], par_weights, co.light_saturation, k, depth)
 
 
-def process_rates(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray, par_weights=None):
-    """Specific rates of each group [1/d], each (M, B, G).
-
-    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) [°C]; par and
-    par_weights as in :func:`light_factor`. Returns (growth, mortality, settling).
-    """
+def _rates(C, co, temperature, par, par_weights=None):
+    """Growth, mortality, settling [1/d] and the DIN share of growth [-] (or 1.0)."""
     N = C[..., 0:1]
     P = C[..., 1:2]
     T = temperature[..., :, None]
     f_light = light_factor(C, co, par, par_weights)
-    mu = kinetics.growth_rate(co.mu_max_20, co.theta_growth, T, f_light, N, P, co.k_n, co.k_p)
+    if co.any_fixing:
+        f_n, share = kinetics.nitrogen_limitation_with_fixation(N, co.k_n, co.fixation_floor)
+        f_nutrient = np.minimum(f_n, kinetics.monod(P, co.k_p))
+        mu = co.mu_max_20 * kinetics.temperature_factor(co.theta_growth, T) * f_light * f_nutrient
+    else:
+        mu = kinetics.growth_rate(co.mu_max_20, co.theta_growth, T, f_light, N, P, co.k_n, co.k_p)
+        share = 1.0
     m = kinetics.mortality_rate(co.mortality_20, co.theta_mortality, T)
     s = kinetics.settling_rate(co.settling, co.depth_m[:, None])
+    return mu, m, s, share
+
+
+def process_rates(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray, par_weights=None):
+    """Specific rates of each group [1/d], each (M, B, G).
+
+    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) or (M, B) [°C]; par and
+    par_weights as in :func:`light_factor`. Returns (growth, mortality, settling).
+    """
+    mu, m, s, _ = _rates(C, co, temperature, par, par_weights)
     return mu, m, s
 
 
@@ -200,8 +224,11 @@ class ProcessFluxes:
 
     growth, mortality, settling (M, B, G) in chlorophyll-a units (growth of
     A, mortality + respiration of A, settling of A); sediment_phosphorus
-    (B,) [µg P/L/d] or 0.0; denitrification (M, B) [µg N/L/d] or 0.0.
-    Nutrient fluxes of the algae follow by stoichiometry.
+    (B,) or (M, B) [µg P/L/d] or 0.0; denitrification (M, B) [µg N/L/d] or
+    0.0; fixed_growth (M, B, G) [µg chl-a/L/d] or 0.0, the part of growth
+    whose nitrogen is fixed from N2 rather than taken from DIN (its N is
+    n_to_chl·fixed_growth). Nutrient fluxes of the algae follow by
+    stoichiometry.
     """
 
     growth: np.ndarray
@@ -209,13 +236,16 @@ class ProcessFluxes:
     settling: np.ndarray
     sediment_phosphorus: np.ndarray | float
     denitrification: np.ndarray | float = 0.0
+    fixed_growth: np.ndarray | float = 0.0
 
 
 def process_fluxes(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray,
                    par_weights=None) -> ProcessFluxes:
     """The fluxes of every local process; arguments as in :func:`reaction_tendency`."""
     A = C[..., 2:]
-    mu, m, s = process_rates(C, co, temperature, par, par_weights)
+    mu, m, s, share = _rates(C, co, temperature, par, par_weights)
+    growth = mu * A
+    fixed = (1.0 - share) * growth if co.any_fixing else 0.0
     release = 0.0
     if co.sediment_release_20 > 0:
         release = kinetics.sediment_phosphorus_release(
@@ -224,7 +254,7 @@ def process_fluxes(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par
     if co.denitrification_20 > 0:
         denitrification = kinetics.denitrification_rate(
             co.denitrification_20, co.theta_denitrification, temperature) * C[..., 0]
-    return ProcessFluxes(mu * A, m * A, s * A, release, denitrification)
+    return ProcessFluxes(growth, m * A, s * A, release, denitrification, fixed)
 
 
 def tendency_from_fluxes(f: ProcessFluxes, co: Coefficients) -> np.ndarray:
@@ -233,7 +263,8 @@ def tendency_from_fluxes(f: ProcessFluxes, co: Coefficients) -> np.ndarray:
     recycled = co.recycled * f.mortality.sum(axis=-1)
     out = np.empty(f.growth.shape[:-1] + (2 + f.growth.shape[-1],))
     out[..., 2:] = f.growth - f.mortality - f.settling
-    out[..., 0] = co.n_to_chl * (recycled - uptake) - f.denitrification
+    din_uptake = uptake - f.fixed_growth.sum(axis=-1) if np.ndim(f.fixed_growth) else uptake
+    out[..., 0] = co.n_to_chl * (recycled - din_uptake) - f.denitrification
     out[..., 1] = co.p_to_chl * (recycled - uptake) + f.sediment_phosphorus
     return out
 
@@ -242,8 +273,8 @@ def reaction_tendency(C: np.ndarray, co: Coefficients, temperature: np.ndarray, 
                       par_weights=None) -> np.ndarray:
     """Local (within-basin) tendency dC/dt [µg/L/d], blocks (M, B, 2 + G).
 
-    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) [°C]; par (B,) [W/m²]
-    (or (Q, B) with par_weights, see :func:`light_factor`).
+    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) or (M, B) [°C]; par
+    (B,) [W/m²] (or (Q, B) with par_weights, see :func:`light_factor`).
     """
     return tendency_from_fluxes(process_fluxes(C, co, temperature, par, par_weights), co)
 
@@ -309,7 +340,11 @@ def secchi_depth(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
 
 
 def total_mass(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
-    """Total nitrogen and phosphorus in the whole network [kg], (..., 2)."""
+    """Total nitrogen and phosphorus in the whole network [kg], (..., 2).
+
+    Changes at the rate ``mass_fluxes(...)["net"]``; N fixation is a source
+    of the nitrogen total (the ``fixation`` term), not a transfer within it.
+    """
     volume = np.array([b.volume_m3 for b in spec.basins])
     n = (total_nitrogen(E, spec) * volume).sum(axis=-1)
     p = (total_phosphorus(E, spec) * volume).sum(axis=-1)
@@ -321,9 +356,11 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
 
     Keys: ``inflow`` (external loads), ``outflow`` (leaving the system),
     ``settling``, ``mortality_loss`` (the non-recycled part),
-    ``denitrification`` (N only), ``sediment_release`` (P only) and ``net`` =
+    ``denitrification`` (N only), ``fixation`` (N only, N2 fixed by
+    nitrogen-fixing groups), ``sediment_release`` (P only) and ``net`` =
     inflow − outflow − settling − mortality_loss − denitrification +
-    sediment_release, which equals d(total_mass)/dt. forcing at one time.
+    fixation + sediment_release, which equals d(total_mass)/dt. forcing at
+    one time.
     """
     layout = StateLayout(spec)
     E = np.asarray(E, dtype=float)
@@ -333,7 +370,7 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
     q, c_in = forcing.inflow_m3_s[0], forcing.inflow_concentration_ugL[0]
     stoich = np.array([co.n_to_chl, co.p_to_chl])
     A = C[..., 2:]
-    _, m, s = process_rates(C, co, T, par)
+    mu, m, s, share = _rates(C, co, T, par)
 
     def totals(conc_nutrient, chlorophyll_sum):
         return conc_nutrient + stoich * chlorophyll_sum[..., None]
@@ -351,14 +388,17 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
     release = np.zeros((E.shape[0], 2))
     if co.sediment_release_20 > 0:
         j = kinetics.sediment_phosphorus_release(co.sediment_release_20, co.theta_sediment, T, co.depth_m)
-        release[:, 1] = (j * co.volume_m3).sum()
+        release[:, 1] = (j * co.volume_m3).sum(axis=-1)
     denitrification = np.zeros((E.shape[0], 2))
     if co.denitrification_20 > 0:
         k_dn = kinetics.denitrification_rate(co.denitrification_20, co.theta_denitrification, T)
         denitrification[:, 0] = (k_dn * C[..., 0] * co.volume_m3).sum(axis=-1)
+    fixation = np.zeros((E.shape[0], 2))
+    if co.any_fixing:
+        fixation[:, 0] = co.n_to_chl * (((1.0 - share) * mu * A).sum(axis=-1) * co.volume_m3).sum(axis=-1)
     out = {"inflow": inflow, "outflow": outflow, "settling": settling, "mortality_loss": mortality_loss,
-           "denitrification": denitrification, "sediment_release": release}
+           "denitrification": denitrification, "fixation": fixation, "sediment_release": release}
     out = {k: np.asarray(v) * KG_PER_MG for k, v in out.items()}
     out["net"] = (out["inflow"] - out["outflow"] - out["settling"] - out["mortality_loss"]
-                  - out["denitrification"] + out["sediment_release"])
+                  - out["denitrification"] + out["fixation"] + out["sediment_release"])
     return out

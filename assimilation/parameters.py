@@ -16,6 +16,16 @@ that a new water body runs before any tuning. Sources:
     Limnology and Oceanography 7:137–150.
 [5] Redfield, A.C. (1958) The biological control of chemical factors in the
     environment. American Scientist 46:205–221.
+[6] Janse, J.H. (2005) Model studies on the eutrophication of shallow lakes
+    and ditches. PhD thesis, Wageningen University (PCLake), and Hipsey,
+    M.R. et al. (2013) Computational Aquatic Ecosystem Dynamics Model
+    (CAEDYM) v3 Science Manual, University of Western Australia: nitrogen
+    fixers whose N limitation has a floor paid by slower growth (as
+    recalled, from memory).
+[7] Hense, I. and Beckmann, A. (2006) Towards a model of cyanobacteria life
+    cycle — effects of growing and resting stages on bloom formation of
+    N2-fixing species. Ecological Modelling 195:205–218 (a lower growth rate
+    of diazotrophs as the energetic cost of fixation).
 
 Values marked "from memory" are mid-range figures from the compilations [1]
 and [2] as recalled, not re-read from the tables; they are starting values
@@ -32,9 +42,12 @@ the combination of:
 * buoyancy: no settling loss, while the green algae settle at 0.15 m/d,
   which costs them 0.06 /d in a 2.5 m deep arm (settling stands for calm
   water; mixing by wind is not modelled);
-* a low nitrogen half-saturation (5 against 15 µg N/L), a mass-conserving
-  stand-in for nitrogen fixation: fixation itself is not modelled, so total
-  nitrogen stays a conserved quantity that the mass-balance checks verify;
+* nitrogen fixation (``nitrogen_fixing``): when dissolved inorganic N is
+  short, a fixer grows at no less than FIXATION_GROWTH_FRACTION of its
+  maximum rate and takes the missing N from dissolved N2 (see
+  :func:`assimilation.kinetics.nitrogen_limitation_with_fixation`); fixed N
+  is a source of total N that the mass budget books as ``fixation``;
+* a low nitrogen half-saturation (5 against 15 µg N/L);
 * a lower light saturation (shade tolerance under self-shading) and a
   slightly higher phosphorus affinity (K_P 1.5 against 2 µg P/L), so a
   small cyanobacteria population persists through a phosphorus-limited
@@ -90,6 +103,12 @@ DENITRIFICATION_20_PER_D = 0.02
 #: Temperature coefficient of denitrification [-]; 1.045 in [2] (from memory).
 THETA_DENITRIFICATION = 1.045
 
+#: Growth rate of a nitrogen fixer with no dissolved inorganic N, as a
+#: fraction of its maximum rate [-]: the energetic cost of fixing N2.
+#: Fixers grow roughly half as fast on N2 as on DIN [6], [7] (0.4–0.6, from
+#: memory).
+FIXATION_GROWTH_FRACTION = 0.5
+
 # --- phytoplankton groups (rates at 20 °C) ----------------------------------
 #: Eppley (1972) [3]: log10 mu = 0.0275 T − 0.070, i.e. theta = 10**0.0275.
 THETA_EPPLEY = 10.0 ** 0.0275
@@ -105,19 +124,21 @@ GREEN_ALGAE = dict(
     theta_mortality=1.08,         # [1] (from memory)
     settling_m_per_d=0.15,        # 0.05–0.5 m/d in [1] (from memory)
     is_cyanobacteria=False,
+    nitrogen_fixing=False,
 )
 
 CYANOBACTERIA = dict(
     name="cyanobacteria",
     mu_max_20_per_d=1.2,          # slower than greens at 20 °C [1] (from memory)
     theta_growth=1.10,            # steeper temperature response (from memory)
-    k_n_ugL=5.0,                  # low K_N: stand-in for N fixation (see module doc)
+    k_n_ugL=5.0,                  # low K_N for DIN, K_N 5–25 µg N/L in [1] (from memory)
     k_p_ugL=1.5,                  # high P affinity, K_P 1–5 µg P/L in [1] (from memory)
     light_saturation_W_m2=50.0,   # shade tolerant (from memory)
     mortality_20_per_d=0.08,      # [1] (from memory)
     theta_mortality=1.08,         # [1] (from memory)
     settling_m_per_d=0.0,         # buoyant: no net settling (common practice)
     is_cyanobacteria=True,
+    nitrogen_fixing=True,         # N2-fixing cyanobacteria (Nostocales) [6], [7]
 )
 
 

@@ -51,6 +51,10 @@ class Group:
     mortality_20_per_d [1/d] mortality + respiration, theta_mortality [-],
     settling_m_per_d [m/d] (zero for buoyant cyanobacteria),
     is_cyanobacteria: the group a phycocyanin sensor sees.
+    nitrogen_fixing: the group fixes N2 when dissolved inorganic N is short;
+    fixation_growth_fraction [-] in (0, 1] is then its growth rate without
+    DIN as a fraction of the maximum (the cost of fixation; see
+    :func:`assimilation.kinetics.nitrogen_limitation_with_fixation`).
     """
 
     name: str
@@ -63,8 +67,13 @@ class Group:
     theta_mortality: float
     settling_m_per_d: float
     is_cyanobacteria: bool = False
+    nitrogen_fixing: bool = False
+    fixation_growth_fraction: float = _p.FIXATION_GROWTH_FRACTION
 
     def __post_init__(self):
+        f = self.fixation_growth_fraction
+        if not (np.isfinite(f) and 0.0 < f <= 1.0):
+            raise ValueError(f"Group {self.name!r}: fixation_growth_fraction must be in (0, 1], got {f!r}")
         positive = ("theta_growth", "k_n_ugL", "k_p_ugL", "light_saturation_W_m2", "theta_mortality")
         non_negative = ("mu_max_20_per_d", "mortality_20_per_d", "settling_m_per_d")
         for key in positive:

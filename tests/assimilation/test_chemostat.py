@@ -10,7 +10,7 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from assimilation import integrate, light
+from assimilation import integrate, light, model
 from assimilation.spec import Basin, Drivers, Group, ModelSpec, Network, StateLayout
 
 T0 = 20605.0
@@ -24,13 +24,13 @@ SATURATION = 100.0
 F_LIGHT = float(light.steele_depth_average(PAR_FRACTION * SHORTWAVE, SATURATION, K_BACKGROUND, DEPTH))
 
 
-def group(name, mu, k_n, mortality=0.0):
-    return Group(name, mu_max_20_per_d=mu / F_LIGHT, theta_growth=1.07, k_n_ugL=k_n, k_p_ugL=1e-3,
+def group(name, mu, k_n, mortality=0.0, k_p=1e-3):
+    return Group(name, mu_max_20_per_d=mu / F_LIGHT, theta_growth=1.07, k_n_ugL=k_n, k_p_ugL=k_p,
                  light_saturation_W_m2=SATURATION, mortality_20_per_d=mortality, theta_mortality=1.08,
                  settling_m_per_d=0.0)
 
 
-def chemostat(groups, dilution_per_d, yield_chl_per_n=0.5, recycled=0.0):
+def chemostat(groups, dilution_per_d, yield_chl_per_n=0.5, recycled=0.0, nitrogen_in=10.0, phosphorus_in=1.0e4):
     spec = ModelSpec(
         basins=(Basin("culture_vessel", VOLUME, DEPTH, VOLUME / DEPTH),),
         groups=tuple(groups), network=Network(downstream=(-1,), inflow_basin=(0,)),
@@ -40,8 +40,8 @@ def chemostat(groups, dilution_per_d, yield_chl_per_n=0.5, recycled=0.0):
     q = dilution_per_d * VOLUME / 86400.0
     t = np.array([T0, T0 + 2000.0])
     drivers = Drivers(time_d=t, water_temperature_C=np.full((2, 1), 20.0), shortwave_W_m2=np.full(2, SHORTWAVE),
-                      inflow_m3_s=np.full((2, 1), q), inflow_nitrogen_ugL=np.full((2, 1), 10.0),
-                      inflow_phosphorus_ugL=np.full((2, 1), 1.0e4))
+                      inflow_m3_s=np.full((2, 1), q), inflow_nitrogen_ugL=np.full((2, 1), nitrogen_in),
+                      inflow_phosphorus_ugL=np.full((2, 1), phosphorus_in))
     return spec, drivers
 
 
@@ -122,3 +122,49 @@ def test_the_other_order_of_break_even_concentrations_reverses_the_winner():
     N, A = run(spec, drivers, 500.0, [1.0, 1.0])
     assert N == pytest.approx(0.5 * 0.5 / 1.5, rel=1e-4)
     assert A[0] < 1e-6 * A[1]
+
+
+def fixer(name, mu, k_n, fraction, k_p=1e-3):
+    return replace(group(name, mu, k_n, k_p=k_p), nitrogen_fixing=True, fixation_growth_fraction=fraction)
+
+
+def test_batch_without_din_fixer_grows_at_the_cost_reduced_rate_and_non_fixer_does_not():
+    # closed batch (no flow), DIN = 0, phosphorus in excess: a fixer's N limitation is its floor, so it
+    # grows exponentially at fraction · mu_max (PCLake / CAEDYM floor form, from memory); a non-fixer
+    # has f_N = 0 and stays put. All the fixer's N comes from N2, none from DIN.
+    mu, fraction, days = 1.0, 0.4, 5.0
+    spec, drivers = chemostat([fixer("fixer", mu, 0.5, fraction), group("non_fixer", mu, 0.5)], 0.0)
+    layout = StateLayout(spec)
+    E = layout.pack([[0.0]], [[1.0e4]], [[[0.5, 0.5]]])
+    X = integrate.advance(E, spec, drivers, T0, T0 + days, dt_d=1 / 24)
+    A = layout.chlorophyll(X)[0, 0]
+    assert A[0] == pytest.approx(0.5 * np.exp(fraction * mu * days), rel=1e-4)
+    assert A[1] == pytest.approx(0.5, rel=1e-12)
+    assert layout.nitrogen(X)[0, 0] == 0.0
+    # total N rose by exactly the fixed N (yield 0.5 → 2 µg N per µg chl-a); total P is conserved
+    fixed = spec.nitrogen_to_chlorophyll * (A[0] - 0.5)
+    assert model.total_nitrogen(X, spec)[0, 0] - model.total_nitrogen(E, spec)[0, 0] == pytest.approx(fixed, rel=1e-12)
+    assert model.total_phosphorus(X, spec)[0, 0] == pytest.approx(model.total_phosphorus(E, spec)[0, 0], rel=1e-13)
+
+
+def test_fixer_in_nitrogen_free_chemostat_becomes_phosphorus_limited_at_its_break_even_concentration():
+    # inflow without DIN: the fixer survives when fraction · mu > D and grows until phosphorus limits it,
+    # then min(fraction, P/(K_P + P)) · mu = D gives P* = K_P·D/(mu − D) and X* = (P_in − P*)/a_P
+    # (the chemostat result of Monod 1950 / Herbert et al. 1956 on phosphorus); DIN stays zero
+    mu, k_p, D, p_in = 1.0, 0.5, 0.25, 10.0
+    spec, drivers = chemostat([fixer("fixer", mu, 0.5, 0.5, k_p=k_p)], D, nitrogen_in=0.0, phosphorus_in=p_in)
+    layout = StateLayout(spec)
+    E = layout.pack([[0.0]], [[p_in]], [[[0.5]]])
+    X = integrate.advance(E, spec, drivers, T0, T0 + 400.0, dt_d=STEP_D)
+    p_star = k_p * D / (mu - D)
+    assert layout.phosphorus(X)[0, 0] == pytest.approx(p_star, rel=1e-4)
+    assert layout.chlorophyll(X)[0, 0, 0] == pytest.approx((p_in - p_star) / spec.phosphorus_to_chlorophyll, rel=1e-4)
+    assert layout.nitrogen(X)[0, 0] == 0.0
+
+
+def test_fixer_washes_out_of_nitrogen_free_chemostat_when_its_fixing_rate_is_below_dilution():
+    # fraction · mu = 0.2 < D = 0.25: without DIN even the fixer cannot hold on
+    spec, drivers = chemostat([fixer("fixer", 1.0, 0.5, 0.2, k_p=0.5)], 0.25, nitrogen_in=0.0, phosphorus_in=10.0)
+    layout = StateLayout(spec)
+    X = integrate.advance(layout.pack([[0.0]], [[10.0]], [[[2.0]]]), spec, drivers, T0, T0 + 300.0, dt_d=STEP_D)
+    assert layout.chlorophyll(X)[0, 0, 0] < 1e-5

@@ -1,13 +1,15 @@
 """Default groups in a shallow eutrophic arm: who wins in which summer.
 
 The default parameters (assimilation.parameters) give cyanobacteria a
-steeper temperature response, buoyancy and a low nitrogen half-saturation;
-green algae grow faster at 20 °C and below. Expected outcomes
+steeper temperature response, buoyancy, a low nitrogen half-saturation and
+nitrogen fixation; green algae grow faster at 20 °C and below. Expected outcomes
 (common practice in limnology: warm, calm, N-poor water favours
 cyanobacteria; Paerl & Huisman 2008, Science 320:57) are checked against
-the WHO (2003) recreational guidance level of 10 µg/L chlorophyll-a with
-cyanobacterial dominance (REFERENCES.md [verified]).
+the WHO (2003) recreational guidance levels of 10 and 50 µg/L
+chlorophyll-a with cyanobacterial dominance (REFERENCES.md [verified]).
 """
+from dataclasses import replace
+
 import numpy as np
 import pytest
 
@@ -18,11 +20,14 @@ from model_scenarios import JUNE_FIRST_2026
 
 DAYS = 122            # June to September
 WHO_RECREATIONAL_LOW_UGL = 10.0
+WHO_RECREATIONAL_MODERATE_UGL = 50.0
 
 
-def shallow_arm_summer(mean_temperature_C, amplitude_C, nitrogen_in_ugL, phosphorus_in_ugL):
+def shallow_arm_summer(mean_temperature_C, amplitude_C, nitrogen_in_ugL, phosphorus_in_ugL, fixation=True):
     spec = default_spec([Basin("shallow_arm", volume_m3=5.0e6, mean_depth_m=2.5, area_m2=2.0e6)],
                         Network(downstream=(-1,), inflow_basin=(0,)))
+    if not fixation:
+        spec = replace(spec, groups=tuple(replace(g, nitrogen_fixing=False) for g in spec.groups))
     t = JUNE_FIRST_2026 + np.arange(0.0, DAYS + 1e-9, 1.0 / 24.0)
     day = t - t[0]
     temperature = (mean_temperature_C + amplitude_C * np.sin(np.pi * day / DAYS))[:, None]
@@ -53,3 +58,15 @@ def test_cool_nitrogen_rich_summer_keeps_green_algae_dominant():
     late = slice(60, None)
     assert np.all(green[late] > 2.5 * cyano[late])
     assert np.all(cyano < 0.5 * WHO_RECREATIONAL_LOW_UGL)
+
+
+def test_nitrogen_fixing_cyanobacteria_bloom_on_din_poor_inflow_where_non_fixers_stall():
+    # inflow DIN 20 µg/L, SRP 150 µg/L (N:P 0.13 by mass): without fixation the N supply carries at most
+    # 20 / 8.8 ≈ 2 µg/L chlorophyll-a; fixers take N from N2 and bloom past the WHO moderate level
+    green, cyano = shallow_arm_summer(21.0, 6.0, nitrogen_in_ugL=20.0, phosphorus_in_ugL=150.0)
+    _, cyano_plain = shallow_arm_summer(21.0, 6.0, nitrogen_in_ugL=20.0, phosphorus_in_ugL=150.0, fixation=False)
+    late = slice(60, None)
+    assert cyano.max() > WHO_RECREATIONAL_MODERATE_UGL
+    assert np.all(cyano[late] > 2.5 * WHO_RECREATIONAL_LOW_UGL)
+    assert np.all(cyano[late] > 100.0 * green[late])
+    assert np.all(cyano_plain < 0.2 * WHO_RECREATIONAL_LOW_UGL)

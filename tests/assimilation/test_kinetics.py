@@ -54,3 +54,22 @@ def test_denitrification_rate_follows_arrhenius_with_theta_1_045():
     # first-order DIN loss with theta 1.045 (Chapra 1997, ch. 28; from memory)
     assert kinetics.denitrification_rate(0.02, 1.045, 20.0) == pytest.approx(0.02)
     assert kinetics.denitrification_rate(0.02, 1.045, 30.0) == pytest.approx(0.02 * 1.045 ** 10)
+
+
+def test_fixer_nitrogen_limitation_has_its_floor_and_takes_only_the_din_share_from_din():
+    # floor form (PCLake / CAEDYM, from memory): f_N = max(N/(K+N), floor), DIN share = (N/(K+N)) / f_N
+    N = np.array([0.0, 1.0, 5.0, 20.0])
+    f_n, share = kinetics.nitrogen_limitation_with_fixation(N, 5.0, 0.5)
+    np.testing.assert_allclose(f_n, [0.5, 0.5, 0.5, 0.8])
+    np.testing.assert_allclose(share, [0.0, (1.0 / 6.0) / 0.5, 1.0, 1.0])
+    # a non-fixer (floor 0) keeps the Monod term and takes all its N from DIN
+    f_plain, share_plain = kinetics.nitrogen_limitation_with_fixation(N, 5.0, 0.0)
+    np.testing.assert_allclose(f_plain, kinetics.monod(N, 5.0))
+    np.testing.assert_allclose(share_plain, 1.0)
+
+
+def test_group_rejects_a_fixation_growth_fraction_outside_zero_to_one():
+    from assimilation.spec import Group
+    with pytest.raises(ValueError, match=r"fixation_growth_fraction must be in \(0, 1\]"):
+        Group("bad_fixer", 1.0, 1.07, 5.0, 1.0, 50.0, 0.1, 1.08, 0.0, nitrogen_fixing=True,
+              fixation_growth_fraction=1.5)
