@@ -259,7 +259,7 @@ def _step_grid(t0_d: float, times: np.ndarray, dt_d: float):
 def _run(E, spec, drivers, t0_d, save_times, dt_d, params):
     layout = StateLayout(spec)
     E = _check_ensemble(E, layout)
-    drivers.check_against(spec)
+    drivers.check_against(spec, n_members=E.shape[0])
     try:
         dt_d = float(dt_d)
     except (TypeError, ValueError):
@@ -312,7 +312,9 @@ def advance(E, spec: ModelSpec, drivers: Drivers, t0_d: float, t1_d: float, *,
     E (M, n_state) [µg/L], non-negative, layout of :class:`StateLayout`;
     dt_d [d] the largest step (the span is split into equal steps ≤ dt_d);
     params: per-member parameters, keys among ``model.PARAMETER_KEYS``,
-    shape (M, G) [1/d]. Drivers must cover [t0_d, t1_d].
+    shape (M, G) [1/d]. Drivers must cover [t0_d, t1_d]; a per-member water
+    temperature (T, M, B) must have one series per member of E (member m
+    runs under series m), so several weather scenarios run in one call.
     """
     if t1_d < t0_d:
         raise ValueError(f"t1_d ({t1_d}) must not be before t0_d ({t0_d})")

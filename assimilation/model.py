@@ -127,7 +127,7 @@ def coefficients(spec: ModelSpec, params: dict | None = None, n_members: int | N
 
 @dataclass(frozen=True, eq=False)
 class Forcing:
-    """Drivers at K times: water_temperature_C (K, B) [°C], par_W_m2 (K, B)
+    """Drivers at K times: water_temperature_C (K, B) or (K, M, B) [°C], par_W_m2 (K, B)
     [W/m² PAR at the surface], inflow_m3_s (K, I) [m³/s] and
     inflow_concentration_ugL (K, I, 2 + G) [µg/L] (N, P, chlorophyll per group)."""
 
@@ -298,11 +298,19 @@ def tendency(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict | No
     """
     layout = StateLayout(spec)
     E = np.asarray(E, dtype=float)
+    _check_temperature_members(forcing, E.shape[0])
     C = layout.blocks(E)
     co = coefficients(spec, params, E.shape[0])
     out = reaction_tendency(C, co, forcing.water_temperature_C[0], forcing.par_W_m2[0])
     out = out + transport_tendency(C, spec, forcing.inflow_m3_s[0], forcing.inflow_concentration_ugL[0])
     return out.reshape(out.shape[:-2] + (layout.n_state,))
+
+
+def _check_temperature_members(forcing: Forcing, n_members: int) -> None:
+    temperature = forcing.water_temperature_C
+    if temperature.ndim == 3 and temperature.shape[1] != n_members:
+        raise ValueError(f"Drivers.water_temperature_C has one series for each of {temperature.shape[1]} members "
+                         f"(shape (T, M, B)), but the ensemble has {n_members} members")
 
 
 def rhs(t: float, y: np.ndarray, spec: ModelSpec, drivers: Drivers, params: dict | None = None) -> np.ndarray:
@@ -364,6 +372,7 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
     """
     layout = StateLayout(spec)
     E = np.asarray(E, dtype=float)
+    _check_temperature_members(forcing, E.shape[0])
     C = layout.blocks(E)
     co = coefficients(spec, params, E.shape[0])
     T, par = forcing.water_temperature_C[0], forcing.par_W_m2[0]

@@ -213,7 +213,9 @@ class Drivers:
     """Driver time series, interpolated linearly in time by the integrator.
 
     time_d (T,) [epoch days], strictly increasing; water_temperature_C (T, B)
-    [°C]; shortwave_W_m2 (T,) or (T, B) [W/m²] incident at the surface;
+    [°C], or (T, M, B) for one temperature series per ensemble member (e.g.
+    weather scenarios run in one call; M must then be the number of members
+    passed to the integrator); shortwave_W_m2 (T,) or (T, B) [W/m²] incident at the surface;
     inflow_m3_s (T, I) [m³/s]; inflow_nitrogen_ugL (T, I) [µg N/L] DIN;
     inflow_phosphorus_ugL (T, I) [µg P/L] SRP; inflow_chlorophyll_ugL
     (T, I, G) [µg/L] per group, zero when None.
@@ -239,8 +241,8 @@ class Drivers:
         if t.size > 1 and not np.all(np.diff(t) > 0):
             raise ValueError("Drivers.time_d must be strictly increasing")
         T = t.size
-        if self.water_temperature_C.ndim != 2 or self.water_temperature_C.shape[0] != T:
-            raise ValueError(f"Drivers.water_temperature_C must have shape (T={T}, B), "
+        if self.water_temperature_C.ndim not in (2, 3) or self.water_temperature_C.shape[0] != T:
+            raise ValueError(f"Drivers.water_temperature_C must have shape (T={T}, B) or (T={T}, M, B), "
                              f"got {self.water_temperature_C.shape}")
         if self.shortwave_W_m2.ndim not in (1, 2) or self.shortwave_W_m2.shape[0] != T:
             raise ValueError(f"Drivers.shortwave_W_m2 must have shape (T={T},) or (T, B), got {self.shortwave_W_m2.shape}")
@@ -259,11 +261,21 @@ class Drivers:
             if np.any(c < 0):
                 raise ValueError("Drivers.inflow_chlorophyll_ugL must be non-negative")
 
-    def check_against(self, spec: ModelSpec) -> None:
-        """Raise ValueError unless the driver shapes fit ``spec``."""
+    @property
+    def n_members(self) -> int | None:
+        """Members of a per-member water temperature (T, M, B), else None."""
+        return self.water_temperature_C.shape[1] if self.water_temperature_C.ndim == 3 else None
+
+    def check_against(self, spec: ModelSpec, n_members: int | None = None) -> None:
+        """Raise ValueError unless the driver shapes fit ``spec`` and, when
+        given, an ensemble of ``n_members`` members."""
         B, I, G = spec.n_basins, spec.n_inflows, spec.n_groups
-        if self.water_temperature_C.shape[1] != B:
-            raise ValueError(f"Drivers.water_temperature_C has {self.water_temperature_C.shape[1]} basins, spec has {B}")
+        if self.water_temperature_C.shape[-1] != B:
+            raise ValueError(f"Drivers.water_temperature_C has {self.water_temperature_C.shape[-1]} basins, "
+                             f"spec has {B}")
+        if n_members is not None and self.n_members is not None and self.n_members != n_members:
+            raise ValueError(f"Drivers.water_temperature_C has one series for each of {self.n_members} members "
+                             f"(shape (T, M, B)), but the ensemble has {n_members} members")
         if self.shortwave_W_m2.ndim == 2 and self.shortwave_W_m2.shape[1] != B:
             raise ValueError(f"Drivers.shortwave_W_m2 has {self.shortwave_W_m2.shape[1]} basins, spec has {B}")
         if self.inflow_m3_s.shape[1] != I:

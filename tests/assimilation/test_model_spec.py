@@ -7,7 +7,7 @@ import pytest
 from assimilation import integrate, model
 from assimilation.parameters import default_groups, default_spec
 from assimilation.spec import Basin, Drivers, Network, StateLayout
-from model_scenarios import JUNE_FIRST_2026, initial_ensemble, summer_drivers, three_basin_spec
+from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 
 
 def test_state_layout_is_basin_major_with_nitrogen_phosphorus_then_groups():
@@ -146,3 +146,68 @@ def test_advance_rejects_a_non_positive_step():
     with pytest.raises(ValueError, match="dt_d must be a positive number of days"):
         integrate.advance(initial_ensemble(spec, 2), spec, summer_drivers(days=2), JUNE_FIRST_2026,
                           JUNE_FIRST_2026 + 1.0, dt_d=0.0)
+
+
+def scenario_drivers(base, offsets_C, members_per_scenario):
+    """(T, M, B) water temperature: each offset [°C] for a block of members (weather scenarios)."""
+    per_member = np.repeat(np.asarray(offsets_C, dtype=float), members_per_scenario)
+    temperature = base.water_temperature_C[:, None, :] + per_member[None, :, None]
+    return replace(base, water_temperature_C=temperature)
+
+
+def test_one_call_with_member_temperatures_equals_one_call_per_scenario():
+    # three air-temperature scenarios, two members each, with sediment release (temperature-driven) on
+    spec = three_basin_spec(sediment_phosphorus_release_20_mg_m2_d=1.0)
+    base = summer_drivers(days=6)
+    offsets, k = (0.0, 3.0, -3.0), 2
+    E = initial_ensemble(spec, len(offsets) * k)
+    params = member_params(spec, len(offsets) * k)
+    save = JUNE_FIRST_2026 + np.arange(0.0, 6.0 + 1e-9, 1.0)
+    together = integrate.simulate(E, spec, scenario_drivers(base, offsets, k), save[0], save, params=params)
+    for s, offset in enumerate(offsets):
+        rows = slice(s * k, (s + 1) * k)
+        shifted = replace(base, water_temperature_C=base.water_temperature_C + offset)
+        alone = integrate.simulate(E[rows], spec, shifted, save[0], save,
+                                   params={key: v[rows] for key, v in params.items()})
+        np.testing.assert_allclose(together[:, rows], alone, rtol=1e-12, atol=1e-12)
+    # the scenarios really differ from the unshifted run, so the check is not trivial
+    plain = integrate.simulate(E, spec, base, save[0], save, params=params)
+    np.testing.assert_allclose(together[:, :k], plain[:, :k], rtol=1e-12, atol=1e-12)
+    assert np.abs(together[-1, k:] - plain[-1, k:]).max(axis=-1).min() > 0.1
+    cyano = StateLayout(spec).chlorophyll(together[-1])[..., 1] / StateLayout(spec).chlorophyll(plain[-1])[..., 1]
+    assert np.all(cyano[k:2 * k] > 1.0) and np.all(cyano[2 * k:] < 1.0)      # warmer water, faster cyanobacteria
+
+
+def test_member_temperatures_keep_the_mass_budget_identity():
+    # d/dt total mass from the tendency equals mass_fluxes' net, member by member, with (T, M, B) temperatures
+    spec = three_basin_spec(sediment_phosphorus_release_20_mg_m2_d=1.5)
+    drivers = scenario_drivers(summer_drivers(days=3), (0.0, 4.0, -4.0), 2)
+    rng = np.random.default_rng(5)
+    layout = StateLayout(spec)
+    E = rng.uniform(0.1, 200.0, (6, layout.n_state))
+    forcing = model.forcing_at(drivers, spec, [JUNE_FIRST_2026 + 1.5])
+    assert forcing.water_temperature_C.shape == (1, 6, 3)
+    dE = model.tendency(E, spec, forcing)
+    volume = np.array([b.volume_m3 for b in spec.basins])
+    dn = ((layout.nitrogen(dE) + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
+    dp = ((layout.phosphorus(dE) + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
+    net = model.mass_fluxes(E, spec, forcing)["net"]
+    np.testing.assert_allclose(np.stack([dn, dp], -1) * 1e-6, net, rtol=1e-10, atol=1e-12 * np.abs(net).max())
+    # warmer members release more sediment phosphorus
+    release = model.mass_fluxes(E, spec, forcing)["sediment_release"][:, 1]
+    assert release[2] > release[0] > release[4]
+
+
+def test_advance_rejects_member_temperatures_for_another_ensemble_size():
+    spec = three_basin_spec()
+    drivers = scenario_drivers(summer_drivers(days=2), (0.0, 2.0), 2)         # 4 members
+    with pytest.raises(ValueError, match="one series for each of 4 members .* ensemble has 3 members"):
+        integrate.advance(initial_ensemble(spec, 3), spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + 1.0)
+    with pytest.raises(ValueError, match="one series for each of 4 members .* ensemble has 3 members"):
+        model.tendency(initial_ensemble(spec, 3), spec, model.forcing_at(drivers, spec, [JUNE_FIRST_2026]))
+
+
+def test_drivers_reject_water_temperature_of_four_dimensions():
+    d = summer_drivers(days=1)
+    with pytest.raises(ValueError, match=r"water_temperature_C must have shape \(T=25, B\) or \(T=25, M, B\)"):
+        replace(d, water_temperature_C=d.water_temperature_C[:, None, None, :])
