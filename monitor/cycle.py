@@ -239,19 +239,17 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
 
 
 def _forecast(states, params, spec, inputs: CycleInputs) -> dict:
-    """Run the analysis ensemble to the horizon, members spread over the driver scenarios."""
+    """Run the analysis ensemble to the horizon in one call, members spread over the driver scenarios."""
     layout = StateLayout(spec)
     M = states.shape[0]
     t0 = inputs.analysis_d
     save = t0 + np.arange(0, 24 * inputs.horizon_days + 1) / 24.0
-    traj = np.empty((save.size, M, layout.n_state))
-    scenario = np.arange(M) % len(inputs.forecast_drivers)
-    for k, drivers in enumerate(inputs.forecast_drivers):
-        members = np.flatnonzero(scenario == k)
-        if members.size == 0:
-            continue
-        sub = {name: value[members] for name, value in (params or {}).items()}
-        traj[:, members] = integrate.simulate(states[members], spec, drivers, t0, save, params=sub or None)
+    scenarios = inputs.forecast_drivers
+    base = scenarios[0]
+    member_scenario = np.arange(M) % len(scenarios)
+    temps = np.stack([d.water_temperature_C for d in scenarios])          # (S, T, B)
+    drivers = dataclasses.replace(base, water_temperature_C=np.transpose(temps[member_scenario], (1, 0, 2)))
+    traj = integrate.simulate(states, spec, drivers, t0, save, params=params or None)
     chl = layout.chlorophyll(traj)
     cyano = [g for g, grp in enumerate(spec.groups) if grp.is_cyanobacteria]
     quantities = {

@@ -136,7 +136,7 @@ def forecast_drivers(series: StationSeries, weather_forecast: pd.DataFrame, conf
     for basin, st in zip(wb.basins, src.temperature_stations):
         water = series.daily_mean(st, "water_temperature")
         start_temps.append(float(water.iloc[-1]) if len(water) else FALLBACK["water_temperature"])
-        both = pd.concat([water, past_air], axis=1, keys=["w", "a"]).dropna().tail(7)
+        both = pd.DataFrame({"w": water, "a": past_air.reindex(water.index)}).dropna().tail(7)
         offsets.append(float((both.w - both.a).mean()) if len(both) else 0.0)
         # relaxation time ≈ 1.5 d per 4 m of depth (common practice)
         taus.append(1.5 * max(basin.mean_depth_m, 1.0) / 4.0)
