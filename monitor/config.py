@@ -207,7 +207,7 @@ class FilterSettings:
     seed: int = 20260501
     window_days: float = 1.0
     assimilate_suspect: bool = False
-    spin_up_cycles: int = 3  # cycles after a cold start before alert rules are evaluated
+    spin_up_cycles: int = 7  # cycles after a cold start before alert rules are evaluated
     options: Mapping[str, Any] = field(default_factory=dict)  # passed to assimilation FilterConfig
 
 
@@ -620,7 +620,7 @@ def parse_config(data: Mapping[str, Any], path: Path | None = None) -> Config:
     filt = FilterSettings(members=fr.get("members", int, 60), method=fr.choice("method", FILTER_METHODS, "sqrt"),
                           seed=fr.get("seed", int, 20260501), window_days=fr.positive("window_days", 1.0),
                           assimilate_suspect=fr.get("assimilate_suspect", bool, False),
-                          spin_up_cycles=fr.get("spin_up_cycles", int, 3), options=options)
+                          spin_up_cycles=fr.get("spin_up_cycles", int, 7), options=options)
     if filt.spin_up_cycles < 0:
         raise fr.error("spin_up_cycles", f"expected 0 or more, got {filt.spin_up_cycles}")
     if filt.members < 3:
