@@ -67,15 +67,21 @@ class Twin:
     sensor_error_rms: float  # rms standard deviation of the hourly fluorescence readings [µg/L]
 
 
-def make_twin(days: int, seed: int) -> Twin:
-    """Truth run and synthetic readings: hourly chlorophyll fluorescence in the arm
-    (sensor 0) and open water (sensor 1), hourly phycocyanin in the arm, weekly
-    lab chlorophyll-a, nitrate and SRP in every basin."""
+def truth_run(days: int):
+    """The twin's truth: (spec, drivers, layout, hourly times [epoch days], hourly states (S, n_state))."""
     s = spec()
     drv = drivers(days + 1)
     layout = StateLayout(s)
     hours = T0_D + np.arange(1, days * 24 + 1) / 24.0
     truth = integrate.simulate(TRUE_INITIAL_STATE[None], s, drv, T0_D, hours, params=true_parameters(s))[:, 0]
+    return s, drv, layout, hours, truth
+
+
+def make_twin(days: int, seed: int) -> Twin:
+    """Truth run and synthetic readings: hourly chlorophyll fluorescence in the arm
+    (sensor 0) and open water (sensor 1), hourly phycocyanin in the arm, weekly
+    lab chlorophyll-a, nitrate and SRP in every basin."""
+    s, drv, layout, hours, truth = truth_run(days)
     rng = np.random.default_rng(seed)
     chl = layout.total_chlorophyll(truth)
     cyano = layout.chlorophyll(truth)[:, :, CYANO]

@@ -46,18 +46,14 @@ from filterpy.kalman import EnsembleKalmanFilter  # noqa: E402
 from assimilation import filter as bf  # noqa: E402
 from assimilation import integrate, observe  # noqa: E402
 from assimilation.spec import StateLayout  # noqa: E402
-from filter_twin import (CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TRUE_INITIAL_STATE, TWIN_SETTINGS,  # noqa: E402
-                         drivers, spec, true_parameters)
+from filter_twin import (CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TWIN_SETTINGS,  # noqa: E402
+                         truth_run)
 
 SPIN_UP_DAYS = 20
 
 
 def make_problem(days, seed=1):
-    s = spec()
-    drv = drivers(days + 1)
-    layout = StateLayout(s)
-    hours = T0_D + np.arange(1, days * 24 + 1) / 24.0
-    truth = integrate.simulate(TRUE_INITIAL_STATE[None], s, drv, T0_D, hours, params=true_parameters(s))[:, 0]
+    s, drv, layout, hours, truth = truth_run(days)
     rng = np.random.default_rng(seed)
     chl = layout.total_chlorophyll(truth)
     parts = []
