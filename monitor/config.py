@@ -16,8 +16,8 @@ from pathlib import Path
 from typing import Any, Mapping
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-from monitor.frameworks import FRAMEWORKS, AlertLevel
-from monitor.variables import VARIABLES
+from monitor.alerting.frameworks import FRAMEWORKS, AlertLevel
+from monitor.ingest.variables import VARIABLES
 
 USES = ("drinking-water", "recreation")
 STATION_KINDS = ("buoy", "lab", "gauge", "weather")
@@ -27,7 +27,7 @@ LAYOUTS = ("wide", "long")
 FILTER_METHODS = ("sqrt", "stochastic")
 BELOW_DETECTION = ("reject", "half", "zero")
 
-#: QC parameters a station may override per variable (see ``monitor.qc``).
+#: QC parameters a station may override per variable (see ``monitor.ingest.qc``).
 #: Model constants a water body may override (fields of ``assimilation.spec.ModelSpec``).
 MODEL_KEYS = (
     "par_fraction", "background_attenuation_per_m", "chlorophyll_attenuation_m2_mg",

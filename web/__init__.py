@@ -3,7 +3,7 @@
 ``create_app(config=None)`` builds the Flask app. ``config`` is a
 :class:`monitor.config.Config`, a path to the TOML file, or None to read the
 path from the environment variable ``BLOOMLINE_CONFIG``. The store is
-opened (and migrated) with :func:`monitor.db.open_store`. Views read and
+opened (and migrated) with :func:`monitor.store.db.open_store`. Views read and
 write only through ``monitor`` store functions.
 """
 
@@ -18,9 +18,9 @@ from typing import Callable
 from flask import Flask, current_app, jsonify, render_template, request
 from werkzeug.exceptions import HTTPException
 
-from monitor.caution import CAUTION
+from monitor.alerting.caution import CAUTION
 from monitor.config import Config, load_config
-from monitor.db import open_store
+from monitor.store.db import open_store
 
 ENV_CONFIG = "BLOOMLINE_CONFIG"
 

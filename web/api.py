@@ -16,8 +16,8 @@ import io
 
 from flask import Blueprint, Response, abort, jsonify, request, url_for
 
-from monitor import status
-from monitor.caution import CAUTION
+from monitor.store import status
+from monitor.alerting.caution import CAUTION
 from web import get_config, get_engine
 
 api = Blueprint("api", __name__)

@@ -6,7 +6,8 @@ import datetime as dt
 
 from flask import Blueprint, Response, abort, render_template, request
 
-from monitor import notify, status, subscriptions
+from monitor.alerting import notify, subscriptions
+from monitor.store import status
 from web import get_config, get_engine, now
 from web.plots import FORMATS, fan_chart
 

@@ -13,7 +13,7 @@ The answer is the batch's counts as JSON:
   413 body larger than :data:`MAX_BODY_BYTES`, 415 other content types,
   500 the batch failed inside the store (retry later).
 
-The view only calls :func:`monitor.ingest.ingest_bytes`.
+The view only calls :func:`monitor.ingest.batches.ingest_bytes`.
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ import hmac
 
 from flask import Blueprint, current_app, jsonify, request
 
-from monitor.ingest import ingest_bytes
+from monitor.ingest.batches import ingest_bytes
 
 MAX_BODY_BYTES = 10 * 1024 * 1024
 _FORMATS = {"application/json": "json", "text/csv": "csv", "application/csv": "csv"}

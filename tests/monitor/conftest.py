@@ -16,7 +16,7 @@ import pytest
 from sqlalchemy import create_engine, text
 
 from monitor.config import parse_config
-from monitor.db import connect, upgrade
+from monitor.store.db import connect, upgrade
 
 UTC = dt.timezone.utc
 NOW = dt.datetime(2026, 9, 1, 12, 0, tzinfo=UTC)

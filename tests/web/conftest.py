@@ -13,8 +13,8 @@ import pytest
 from sqlalchemy import insert
 
 from monitor.config import parse_config
-from monitor.db import open_store
-from monitor.schema import forecast_runs, forecast_values, ingest_batches, readings, water_bodies
+from monitor.store.db import open_store
+from monitor.store.schema import forecast_runs, forecast_values, ingest_batches, readings, water_bodies
 
 UTC = dt.timezone.utc
 ANALYSIS = dt.datetime(2026, 8, 10, 6, 0, tzinfo=UTC)

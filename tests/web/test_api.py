@@ -12,8 +12,8 @@ import pandas as pd
 import pytest
 from flask import Blueprint
 
-from monitor.alerts import evaluate_run
-from monitor.caution import CAUTION
+from monitor.alerting.rules import evaluate_run
+from monitor.alerting.caution import CAUTION
 
 
 def test_water_bodies_lists_basins_and_the_framework_with_its_source(client):

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import re
 
-from monitor.caution import CAUTION
-from monitor.frameworks import FRAMEWORKS
+from monitor.alerting.caution import CAUTION
+from monitor.alerting.frameworks import FRAMEWORKS
 
 
 def test_status_page_names_framework_levels_and_carries_the_caution(client):
@@ -61,7 +61,7 @@ def test_subscribe_confirm_and_unsubscribe_through_the_pages_and_the_mailbox(app
     import email
     import email.policy
 
-    from monitor import notify, subscriptions
+    from monitor.alerting import notify, subscriptions
 
     r = client.post("/subscribe", data={"name": "Fen Quill", "email": "fen@quillmere.example",
                                         "water_body": "quillmere", "min_level": "1"})

@@ -7,8 +7,8 @@ import json
 import pytest
 from flask import Flask
 
-from monitor.db import open_store
-from monitor.readings import readings_frame, rejected_rows_frame
+from monitor.store.db import open_store
+from monitor.store.readings import readings_frame, rejected_rows_frame
 from tests.monitor.conftest import NOW, fernwater
 from web.push import MAX_BODY_BYTES, push_api
 
@@ -128,7 +128,7 @@ def test_the_app_factory_serves_the_push_endpoint(tmp_path):
 def test_pushed_payload_is_archived_as_json(push_client, push_app):
     from pathlib import Path
 
-    from monitor.readings import batches_frame
+    from monitor.store.readings import batches_frame
 
     body = json.dumps(RECORDS[:1]).encode()
     push_client.post(URL, data=body, content_type="application/json", headers=auth())

@@ -1,0 +1,148 @@
+"""The ``bloomline`` command."""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import sys
+from pathlib import Path
+
+import click
+
+from monitor.config import ConfigError, load_config
+from monitor.app.ingest_cli import ingest
+
+
+def _load(path: str):
+    try:
+        return load_config(path)
+    except ConfigError as exc:
+        raise click.ClickException(f"configuration error: {exc}") from None
+
+
+def _parse_time(value: str | None) -> dt.datetime:
+    if value is None:
+        return dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
+    t = dt.datetime.fromisoformat(value)
+    return t.replace(tzinfo=dt.timezone.utc) if t.tzinfo is None else t.astimezone(dt.timezone.utc)
+
+
+config_option = click.option("--config", "config_path", envvar="BLOOMLINE_CONFIG", required=True,
+                             type=click.Path(dir_okay=False), help="Bloomline TOML file (or $BLOOMLINE_CONFIG).")
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(package_name="bloomline")
+def main() -> None:
+    """Bloomline: early warning of harmful algal blooms.
+
+    Ingests sensor, lab, inflow and weather readings, quality-controls them,
+    assimilates them into a nutrient–phytoplankton model with an ensemble
+    Kalman filter and forecasts the probability of reaching each alert level.
+    Forecasts are estimates: the advisories of the local water-quality and
+    public-health authorities prevail.
+    """
+
+
+@main.command("check-config")
+@click.argument("file", type=click.Path(dir_okay=False))
+def check_config(file: str) -> None:
+    """Validate a configuration FILE and summarise it."""
+    cfg = _load(file)
+    click.echo(f"{file}: ok")
+    for wb in cfg.water_bodies:
+        levels = ", ".join(f"{lv.name} {lv.chlorophyll_ugL:g} µg/L" for lv in wb.alerts.levels)
+        click.echo(f"  {wb.id} ({wb.use}): {len(wb.basins)} basin(s), {len(wb.inflows)} inflow(s); "
+                   f"framework {wb.alerts.framework}: {levels}")
+    click.echo(f"  {len(cfg.stations)} station(s), {len(cfg.feeds)} feed(s), {len(cfg.subscribers)} subscriber(s)")
+
+
+@main.command()
+@config_option
+def upgrade(config_path: str) -> None:
+    """Create or migrate the database to the current schema."""
+    from monitor.store.db import open_store
+
+    cfg = _load(config_path)
+    open_store(cfg.service.database_url)
+    click.echo(f"database at {cfg.service.database_url} is up to date")
+
+
+@main.command()
+@config_option
+@click.option("--at", "at", help="Analysis time (ISO 8601, UTC if no offset); default now.")
+@click.option("--water-body", "water_body", multiple=True, help="Only these water bodies (repeatable).")
+def cycle(config_path: str, at: str | None, water_body: tuple[str, ...]) -> None:
+    """Run one assimilation and forecast cycle now (or --at a time)."""
+    from monitor.app.service import Service
+
+    svc = Service(_load(config_path))
+    for summary in svc.run_cycles(_parse_time(at), only=water_body or None):
+        events = ", ".join(f"{e['basin_id']}: level {e['from_level']}→{e['to_level']}" for e in summary["events"])
+        click.echo(f"{summary['water_body']} {summary['analysis_utc']}: {summary['status']}"
+                   f"{' — ' + summary['message'] if summary['message'] else ''}{'; ' + events if events else ''}")
+
+
+@main.command()
+@config_option
+def send(config_path: str) -> None:
+    """Send the emails waiting in the outbox (failed ones are retried later)."""
+    from monitor.app.service import Service
+
+    result = Service(_load(config_path)).send_mail()
+    click.echo(json.dumps(result.__dict__ if hasattr(result, "__dict__") else result, default=str))
+
+
+@main.command()
+@config_option
+@click.option("--host", default=None, help="Address to listen on (default from the config).")
+@click.option("--port", default=None, type=int, help="Port (default from the config).")
+def serve(config_path: str, host: str | None, port: int | None) -> None:
+    """Serve the status page, API and subscription forms."""
+    from web import create_app
+
+    cfg = _load(config_path)
+    app = create_app(cfg)
+    host = host or cfg.service.host
+    port = port or cfg.service.port
+    click.echo(f"Bloomline status page: http://{host}:{port}/")
+    app.run(host=host, port=port)
+
+
+@main.command()
+@config_option
+@click.option("--with-web/--no-web", default=True, help="Serve the web app in the same process.")
+def run(config_path: str, with_web: bool) -> None:
+    """Run the service: scheduled ingest, daily cycles, email sending (and the web app)."""
+    from monitor.app.scheduler import run_service
+
+    run_service(_load(config_path), with_web=with_web)
+
+
+@main.command()
+@click.option("--workdir", default="bloomline-demo", show_default=True, type=click.Path(file_okay=False),
+              help="Folder for the demo's config, database, archive and mailbox.")
+@click.option("--serve/--no-serve", "serve_", default=True, help="Serve the status page after the summary.")
+@click.option("--json", "as_json", is_flag=True, help="Print the summary as one JSON object.")
+@click.option("--port", default=8050, show_default=True, type=int, help="Port of the status page.")
+@click.option("--feeds", default=None, type=click.Path(file_okay=False, exists=True),
+              help="The scenario folder (default: the sample_feeds/ folder of this checkout).")
+def demo(workdir: str, serve_: bool, as_json: bool, port: int, feeds: str | None) -> None:
+    """Run the invented demo season end to end and show the status page."""
+    from monitor.app.demo import run_demo
+
+    summary, cfg = run_demo(Path(workdir), feeds=Path(feeds) if feeds else None, quiet=as_json, port=port)
+    if as_json:
+        click.echo(json.dumps(summary, default=str))
+    if serve_:
+        from web import create_app
+
+        app = create_app(cfg)
+        click.echo(f"Bloomline status page: http://127.0.0.1:{port}/  (Ctrl+C to stop)", err=as_json)
+        app.run(host="127.0.0.1", port=port)
+
+
+main.add_command(ingest)
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,343 @@
+"""One assimilation-and-forecast cycle per water body, in three steps.
+
+1. :func:`gather` reads what a cycle needs from the store (the newest
+   checkpoint, QC-passed observations since it, observed and forecast
+   drivers) into a picklable :class:`CycleInputs`.
+2. :func:`compute` is a pure function of those inputs: ensemble Kalman
+   filter analysis (``assimilation.filter``), ensemble forecast to the
+   horizon (``assimilation.integrate``) and daily statistics
+   (``assimilation.forecast``). It runs in-process or on a Dask worker.
+3. :func:`record` stores the checkpoint and the forecast run and evaluates
+   the alert rules.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from sqlalchemy.engine import Engine
+
+from assimilation import filter as enkf_filter
+from assimilation import integrate
+from assimilation.checkpoint import Checkpoint
+from assimilation.forecast import QUANTILES, daily_statistics
+from assimilation.observe import OBSERVABLE_KINDS, Observations
+from assimilation.parameters import default_spec
+from assimilation.spec import Basin, Drivers, ModelSpec, Network, StateLayout
+from monitor.alerting import rules as alerts
+from monitor.store import runs as store
+from monitor.config import Config, WaterBodyConfig
+from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
+from monitor.store.readings import latest_driver_forecast, readings_frame
+from monitor.timeutil import from_epoch_days, to_epoch_days
+
+#: Air-temperature offsets [°C] of the forecast's driver scenarios; members are
+#: spread over them so the forecast carries weather uncertainty (common practice
+#: for driver ensembles).
+DRIVER_SCENARIOS_C = (-1.5, 0.0, 1.5)
+
+#: First guess when a basin has no recent sample [µg/L] (mid-range for a
+#: mesotrophic lake; common practice).
+FIRST_GUESS = {"nitrogen": 300.0, "phosphorus": 8.0, "other_chlorophyll": 2.0, "cyanobacteria": 0.3}
+
+QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll", "nitrogen", "phosphorus")
+
+
+# --------------------------------------------------------------------------
+# Model and filter set-up from the configuration
+
+
+def model_spec(wb: WaterBodyConfig) -> ModelSpec:
+    """The model spec of a configured water body (default parameters plus its overrides)."""
+    ids = [b.id for b in wb.basins]
+    network = Network(downstream=tuple(-1 if b.flows_to == "outlet" else ids.index(b.flows_to) for b in wb.basins),
+                      inflow_basin=tuple(ids.index(i.basin) for i in wb.inflows))
+    basins = [Basin(name=b.id, volume_m3=b.volume_m3, mean_depth_m=b.mean_depth_m, area_m2=b.area_m2)
+              for b in wb.basins]
+    spec = default_spec(basins, network)
+    return dataclasses.replace(spec, **dict(wb.model)) if wb.model else spec
+
+
+def chlorophyll_sensors(config: Config, wb: WaterBodyConfig) -> tuple[str, ...]:
+    """The stations of a water body whose chlorophyll-fluorescence gain the filter estimates."""
+    return tuple(s.id for s in config.stations
+                 if s.water_body == wb.id and "chlorophyll_fluorescence" in s.variables)
+
+
+def filter_config(config: Config, wb: WaterBodyConfig) -> enkf_filter.FilterConfig:
+    return enkf_filter.FilterConfig(members=config.filter.members, method=config.filter.method,
+                                    n_sensors=len(chlorophyll_sensors(config, wb)),
+                                    window_d=config.filter.window_days, **dict(config.filter.options))
+
+
+# --------------------------------------------------------------------------
+# Step 1: gather
+
+
+@dataclass
+class CycleInputs:
+    water_body_id: str
+    analysis_d: float
+    spec: ModelSpec
+    filter: enkf_filter.FilterConfig
+    checkpoint: bytes | None
+    start_d: float
+    initial_state: np.ndarray | None
+    seed: int
+    observations: Observations
+    drivers: Drivers
+    forecast_drivers: list[Drivers]
+    horizon_days: int
+    thresholds_ugL: tuple[float, ...]
+    window_days: float = 1.0
+    basin_ids: tuple[str, ...] = ()
+
+
+def station_readings(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
+                     end: dt.datetime) -> pd.DataFrame:
+    """Stored readings of every station of ``wb`` (basins, gauges, weather) in [start, end]."""
+    stations = sorted({s.id for s in config.stations if s.water_body == wb.id} | set(driver_stations(config, wb)))
+    max_flag = 3 if config.filter.assimilate_suspect else 1
+    return readings_frame(engine, stations=stations, start=start, end=end, max_flag=max_flag)
+
+
+def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig, after: dt.datetime) -> pd.DataFrame:
+    """The assimilable readings of ``wb``'s basins later than ``after``."""
+    if frame.empty:
+        return frame
+    basin_stations = {s.id for s in config.stations if s.water_body == wb.id and s.basin is not None}
+    return frame[frame.station_id.isin(basin_stations) & frame.variable.isin(OBSERVABLE_KINDS)
+                 & (frame.time_utc > after)]
+
+
+def to_observations(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig) -> Observations:
+    """Stored readings → :class:`Observations` with per-variable error sd from the config."""
+    if frame.empty:
+        return Observations.empty()
+    basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations if s.water_body == wb.id and s.basin}
+    sensors = chlorophyll_sensors(config, wb)
+    sensor_of = {sid: i for i, sid in enumerate(sensors)}
+    values = frame.value.to_numpy(dtype=float)
+    kinds = frame.variable.to_numpy(dtype=str)
+    fraction = np.array([config.observation_errors[k].fraction for k in kinds])
+    floor = np.array([config.observation_errors[k].floor for k in kinds])
+    sensor = np.array([sensor_of.get(s, -1) if k == "chlorophyll_fluorescence" else -1
+                       for s, k in zip(frame.station_id, kinds)], dtype=int)
+    return Observations(time_d=np.asarray(to_epoch_days(frame.time_utc)), kind=kinds,
+                        basin=frame.station_id.map(basin_of).to_numpy(dtype=int), sensor=sensor,
+                        value=values, error_sd=np.maximum(floor, fraction * np.abs(values)))
+
+
+def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: ModelSpec,
+                at: dt.datetime) -> np.ndarray:
+    """A first-guess state from the most recent samples before ``at`` (defaults where none)."""
+    layout = StateLayout(spec)
+    B, G = spec.n_basins, spec.n_groups
+    cyano = spec.cyanobacteria_index
+    frame = observations_frame(station_readings(engine, config, wb, at - dt.timedelta(days=14),
+                                                at + dt.timedelta(days=2)), config, wb, at - dt.timedelta(days=14))
+    basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations if s.water_body == wb.id and s.basin}
+    N = np.full(B, FIRST_GUESS["nitrogen"])
+    P = np.full(B, FIRST_GUESS["phosphorus"])
+    total = np.full(B, FIRST_GUESS["other_chlorophyll"] + FIRST_GUESS["cyanobacteria"])
+    cy = np.full(B, FIRST_GUESS["cyanobacteria"])
+    if not frame.empty:
+        frame = frame.assign(basin=frame.station_id.map(basin_of))
+        med = frame.groupby(["basin", "variable"]).value.median()
+        for (b, variable), v in med.items():
+            v = max(float(v), 1e-3)
+            if variable == "nitrate":
+                N[b] = v
+            elif variable == "srp":
+                P[b] = v
+            elif variable in ("chlorophyll_a", "chlorophyll_fluorescence"):
+                total[b] = v
+            elif variable == "phycocyanin":
+                cy[b] = v
+    A = np.empty((B, G))
+    others = [g for g in range(G) if g != cyano]
+    if cyano is None:
+        A[:] = (total / G)[:, None]
+    else:
+        A[:, cyano] = np.minimum(cy, 0.9 * total)
+        A[:, others] = (np.maximum(total - A[:, cyano], 0.1) / max(len(others), 1))[:, None]
+    return layout.pack(N, P, A)
+
+
+def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+           *, season_start: dt.datetime | None = None) -> CycleInputs:
+    """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC)."""
+    spec = model_spec(wb)
+    cfg = filter_config(config, wb)
+    found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
+    if found is not None:
+        start, blob, guess = found[0], found[1], None
+    else:
+        start = season_start or (analysis - dt.timedelta(days=1))
+        blob, guess = None, first_guess(engine, config, wb, spec, start)
+    # One query for the cycle: from a few days before the checkpoint (to bridge
+    # driver gaps) or two weeks before the analysis (for the outlook), whichever is earlier.
+    frame = station_readings(engine, config, wb, min(start - dt.timedelta(days=3), analysis - dt.timedelta(days=14)),
+                             analysis)
+    series = StationSeries(frame)
+    drivers = observed_drivers(series, config, wb, start, analysis)
+    horizon = wb.alerts.horizon_days
+    weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
+               if wb.weather_station else pd.DataFrame())
+    scenarios = forecast_drivers(series, weather, config, wb, analysis, horizon,
+                                 temperature_offsets_C=DRIVER_SCENARIOS_C)
+    return CycleInputs(
+        water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
+        checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
+        seed=config.filter.seed + sum(map(ord, wb.id)),
+        observations=to_observations(observations_frame(frame, config, wb, start), config, wb),
+        drivers=drivers, forecast_drivers=scenarios,
+        horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
+        window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins))
+
+
+# --------------------------------------------------------------------------
+# Step 2: compute (pure)
+
+
+@dataclass
+class CycleOutputs:
+    water_body_id: str
+    analysis_d: float
+    status: str
+    message: str
+    checkpoint: bytes | None
+    diagnostics: dict = field(default_factory=dict)
+    forecasts: dict = field(default_factory=dict)  # quantity -> assimilation.forecast.DailyForecast
+    basin_ids: tuple[str, ...] = ()
+
+
+def compute(inputs: CycleInputs) -> CycleOutputs:
+    """Analysis and forecast for one water body: a pure function of its inputs."""
+    spec, cfg = inputs.spec, inputs.filter
+    if inputs.checkpoint is None:
+        rng = np.random.default_rng(inputs.seed)
+        ckpt = enkf_filter.initial_checkpoint(spec, cfg, inputs.start_d, rng, initial_state=inputs.initial_state)
+    else:
+        ckpt = Checkpoint.from_bytes(inputs.checkpoint)
+    try:
+        result = enkf_filter.assimilate(ckpt, inputs.observations, spec, inputs.drivers, cfg, inputs.analysis_d)
+    except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+        return CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed", f"analysis failed: {exc}",
+                            None, {}, {}, inputs.basin_ids)
+    if result.status == "failed":
+        return CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed", result.message, None,
+                            _jsonable(result.diagnostics), {}, inputs.basin_ids)
+    states, params, _gains = enkf_filter.split(result.checkpoint, spec)
+    forecasts = _forecast(states, params, spec, inputs)
+    return CycleOutputs(inputs.water_body_id, inputs.analysis_d, result.status, result.message,
+                        result.checkpoint.to_bytes(), _jsonable(result.diagnostics), forecasts, inputs.basin_ids)
+
+
+def _forecast(states, params, spec, inputs: CycleInputs) -> dict:
+    """Run the analysis ensemble to the horizon in one call, members spread over the driver scenarios."""
+    layout = StateLayout(spec)
+    M = states.shape[0]
+    t0 = inputs.analysis_d
+    save = t0 + np.arange(0, 24 * inputs.horizon_days + 1) / 24.0
+    scenarios = inputs.forecast_drivers
+    base = scenarios[0]
+    member_scenario = np.arange(M) % len(scenarios)
+    temps = np.stack([d.water_temperature_C for d in scenarios])          # (S, T, B)
+    drivers = dataclasses.replace(base, water_temperature_C=np.transpose(temps[member_scenario], (1, 0, 2)))
+    traj = integrate.simulate(states, spec, drivers, t0, save, params=params or None)
+    chl = layout.chlorophyll(traj)
+    cyano = [g for g, grp in enumerate(spec.groups) if grp.is_cyanobacteria]
+    quantities = {
+        "cyanobacteria_chlorophyll": chl[..., cyano].sum(axis=-1),
+        "total_chlorophyll": chl.sum(axis=-1),
+        "nitrogen": layout.nitrogen(traj),
+        "phosphorus": layout.phosphorus(traj),
+    }
+    return {q: daily_statistics(save, v, t0, inputs.horizon_days,
+                                inputs.thresholds_ugL if q == "cyanobacteria_chlorophyll" else ())
+            for q, v in quantities.items()}
+
+
+def _jsonable(obj):
+    """Diagnostics → plain JSON types (numpy arrays and scalars become lists and floats)."""
+    if isinstance(obj, dict):
+        return {str(k): _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return _jsonable(obj.tolist())
+    if isinstance(obj, (np.floating, float)):
+        return None if not math.isfinite(float(obj)) else float(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    return obj
+
+
+# --------------------------------------------------------------------------
+# Step 3: record
+
+
+def forecast_rows(outputs: CycleOutputs):
+    """(basin_id, valid_utc, quantity, statistic, value) rows of a cycle's forecast."""
+    for quantity, fc in outputs.forecasts.items():
+        for k, day_end in enumerate(fc.day_end_d):
+            valid = from_epoch_days(day_end)
+            for b, basin in enumerate(outputs.basin_ids):
+                yield basin, valid, quantity, "mean", fc.mean[k, b]
+                for qi, q in enumerate(QUANTILES):
+                    yield basin, valid, quantity, f"q{round(q * 100):02d}", fc.quantiles[qi, k, b]
+                for level in range(fc.exceedance.shape[2]):
+                    yield basin, valid, quantity, f"p_level_{level + 1}", fc.exceedance[k, b, level]
+
+
+def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                    window: dt.timedelta = dt.timedelta(days=1)) -> dict[str, float | None]:
+    """Mean QC-passed phycocyanin (cyanobacteria chlorophyll-a) per basin over the last day [µg/L]."""
+    stations = {s.id: s.basin for s in config.stations
+                if s.water_body == wb.id and s.basin and "phycocyanin" in s.variables}
+    out: dict[str, float | None] = {b.id: None for b in wb.basins}
+    if not stations:
+        return out
+    frame = readings_frame(engine, stations=list(stations), variables=["phycocyanin"],
+                           start=analysis - window, end=analysis, max_flag=1)
+    if not frame.empty:
+        for station, value in frame.groupby("station_id").value.mean().items():
+            out[stations[station]] = float(value)
+    return out
+
+
+def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.datetime | None = None) -> dict:
+    """Store a cycle's checkpoint and forecast, then evaluate the alert rules; returns a summary.
+
+    After a cold start the alert rules wait ``spin_up_cycles`` cycles, while
+    the ensemble's first-guess spread settles on the readings.
+    """
+    wb = config.water_body(outputs.water_body_id)
+    analysis = from_epoch_days(outputs.analysis_d)
+    warm = store.count_forecast_runs(engine, wb.id, before=analysis) >= config.filter.spin_up_cycles
+    message = outputs.message
+    if outputs.forecasts and not warm:
+        message = (message + "; " if message else "") + \
+            f"spin-up: alert rules start after {config.filter.spin_up_cycles} cycles"
+    if outputs.checkpoint is not None:
+        store.save_checkpoint(engine, wb.id, analysis, outputs.checkpoint, now=now)
+    run_id = store.save_forecast_run(engine, wb.id, analysis, outputs.status, message,
+                                     outputs.diagnostics, forecast_rows(outputs), now=now)
+    events = []
+    if outputs.forecasts and warm:
+        observed = latest_observed(engine, config, wb, analysis)
+        events = alerts.evaluate_run(engine, config, wb.id, run_id, observed, now or analysis)
+    return {"water_body": wb.id, "analysis_utc": analysis.isoformat(), "status": outputs.status,
+            "message": message, "run_id": run_id, "events": events}
+
+
+def run_cycle(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+              *, season_start: dt.datetime | None = None, now: dt.datetime | None = None) -> dict:
+    """Gather, compute and record one cycle of one water body."""
+    return record(engine, config, compute(gather(engine, config, wb, analysis, season_start=season_start)), now=now)

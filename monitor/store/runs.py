@@ -1,0 +1,125 @@
+"""Store functions for water bodies, checkpoints and forecast runs.
+
+Readings, batches and rejected rows live in ``monitor.store.readings`` and
+``monitor.ingest.batches``; alert state in ``monitor.alerting.rules``; subscribers in
+``monitor.alerting.subscriptions``. Everything goes through SQLAlchemy Core and works
+on SQLite and PostgreSQL alike.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from typing import Iterable
+
+from sqlalchemy import delete, func, insert, select, update
+from sqlalchemy.engine import Engine
+
+from monitor.store import schema
+from monitor.config import Config
+from monitor.timeutil import now_utc
+
+
+def sync_config(engine: Engine, config: Config) -> None:
+    """Write the configured water bodies, basins and stations (insert or update)."""
+    with engine.begin() as conn:
+        for wb in config.water_bodies:
+            row = dict(id=wb.id, name=wb.name, use=wb.use, timezone=wb.timezone, framework=wb.alerts.framework)
+            if conn.execute(select(schema.water_bodies.c.id).where(schema.water_bodies.c.id == wb.id)).first():
+                conn.execute(update(schema.water_bodies).where(schema.water_bodies.c.id == wb.id).values(**row))
+            else:
+                conn.execute(insert(schema.water_bodies).values(**row))
+            conn.execute(delete(schema.basins).where(schema.basins.c.water_body_id == wb.id))
+            conn.execute(insert(schema.basins), [
+                dict(water_body_id=wb.id, id=b.id, name=b.name, volume_m3=b.volume_m3,
+                     mean_depth_m=b.mean_depth_m, area_m2=b.area_m2, flows_to=b.flows_to)
+                for b in wb.basins])
+        for st in config.stations:
+            row = dict(id=st.id, kind=st.kind, water_body_id=st.water_body, basin_id=st.basin)
+            if conn.execute(select(schema.stations.c.id).where(schema.stations.c.id == st.id)).first():
+                conn.execute(update(schema.stations).where(schema.stations.c.id == st.id).values(**row))
+            else:
+                conn.execute(insert(schema.stations).values(**row))
+
+
+# --------------------------------------------------------------------------
+# Checkpoints
+
+
+def save_checkpoint(engine: Engine, water_body_id: str, time_utc: dt.datetime, data: bytes,
+                    *, now: dt.datetime | None = None) -> None:
+    """Store the checkpoint of ``water_body_id`` at ``time_utc`` (replacing one at the same time)."""
+    t = schema.checkpoints
+    with engine.begin() as conn:
+        conn.execute(delete(t).where((t.c.water_body_id == water_body_id) & (t.c.time_utc == time_utc)))
+        conn.execute(insert(t).values(water_body_id=water_body_id, time_utc=time_utc,
+                                      created_at=now or now_utc(), data=data))
+
+
+def latest_checkpoint(engine: Engine, water_body_id: str,
+                      at_or_before: dt.datetime | None = None) -> tuple[dt.datetime, bytes] | None:
+    """The newest checkpoint (time, bytes) of a water body, optionally at or before a time."""
+    t = schema.checkpoints
+    q = select(t.c.time_utc, t.c.data).where(t.c.water_body_id == water_body_id)
+    if at_or_before is not None:
+        q = q.where(t.c.time_utc <= at_or_before)
+    with engine.connect() as conn:
+        row = conn.execute(q.order_by(t.c.time_utc.desc()).limit(1)).first()
+    return (row.time_utc, bytes(row.data)) if row else None
+
+
+def prune_checkpoints(engine: Engine, water_body_id: str, keep: int = 14) -> int:
+    """Delete all but the newest ``keep`` checkpoints of a water body; returns how many went."""
+    t = schema.checkpoints
+    with engine.begin() as conn:
+        times = conn.execute(select(t.c.time_utc).where(t.c.water_body_id == water_body_id)
+                             .order_by(t.c.time_utc.desc())).scalars().all()
+        if len(times) <= keep:
+            return 0
+        cutoff = times[keep - 1]
+        return conn.execute(delete(t).where((t.c.water_body_id == water_body_id)
+                                            & (t.c.time_utc < cutoff))).rowcount
+
+
+# --------------------------------------------------------------------------
+# Forecast runs
+
+
+def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datetime, status: str,
+                      message: str, diagnostics: dict | None,
+                      values: Iterable[tuple[str, dt.datetime, str, str, float]],
+                      *, now: dt.datetime | None = None) -> int:
+    """Store one forecast run and its values; returns the run id.
+
+    ``values`` holds (basin_id, valid_utc, quantity, statistic, value) tuples
+    (see ``monitor.store.schema.forecast_values``). A run for the same water body
+    and analysis time replaces the earlier one, so re-running a cycle is
+    idempotent.
+    """
+    runs, vals = schema.forecast_runs, schema.forecast_values
+    with engine.begin() as conn:
+        old = conn.execute(select(runs.c.id).where((runs.c.water_body_id == water_body_id)
+                                                   & (runs.c.analysis_utc == analysis_utc))).scalar()
+        if old is not None:
+            conn.execute(delete(vals).where(vals.c.run_id == old))
+            conn.execute(update(runs).where(runs.c.id == old).values(
+                status=status, message=message, diagnostics=diagnostics, created_at=now or now_utc()))
+            run_id = old
+        else:
+            run_id = conn.execute(insert(runs).values(
+                water_body_id=water_body_id, analysis_utc=analysis_utc, created_at=now or now_utc(),
+                status=status, message=message, diagnostics=diagnostics)).inserted_primary_key[0]
+        rows = [dict(run_id=run_id, basin_id=b, valid_utc=t, quantity=q, statistic=s, value=float(v))
+                for b, t, q, s, v in values]
+        if rows:
+            conn.execute(insert(vals), rows)
+    return run_id
+
+
+def count_forecast_runs(engine: Engine, water_body_id: str, *, before: dt.datetime | None = None) -> int:
+    """How many forecast runs of a water body are stored (with an analysis time before ``before``)."""
+    runs = schema.forecast_runs
+    q = select(func.count()).select_from(runs).where(runs.c.water_body_id == water_body_id)
+    if before is not None:
+        q = q.where(runs.c.analysis_utc < before)
+    with engine.connect() as conn:
+        return int(conn.execute(q).scalar())

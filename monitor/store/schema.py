@@ -1,0 +1,227 @@
+"""Bloomline's database schema (SQLAlchemy Core).
+
+One ``MetaData`` for every table; alembic migrations in
+``monitor/store/migrations`` create and change it. Times are stored as UTC.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from sqlalchemy import (
+    JSON,
+    Column,
+    DateTime,
+    Float,
+    ForeignKey,
+    Index,
+    Integer,
+    LargeBinary,
+    MetaData,
+    SmallInteger,
+    String,
+    Table,
+    Text,
+    UniqueConstraint,
+)
+from sqlalchemy.types import TypeDecorator
+
+metadata = MetaData(
+    naming_convention={
+        "ix": "ix_%(table_name)s_%(column_0_N_name)s",
+        "uq": "uq_%(table_name)s_%(column_0_N_name)s",
+        "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+        "pk": "pk_%(table_name)s",
+    }
+)
+
+
+class UTCDateTime(TypeDecorator):
+    """A timestamp stored as naive UTC and returned as an aware UTC datetime."""
+
+    impl = DateTime
+    cache_ok = True
+
+    def process_bind_param(self, value, dialect):
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            raise ValueError(f"naive datetime {value!r}: Bloomline stores aware UTC times only")
+        return value.astimezone(dt.timezone.utc).replace(tzinfo=None)
+
+    def process_result_value(self, value, dialect):
+        if value is None:
+            return None
+        return value.replace(tzinfo=dt.timezone.utc)
+
+
+water_bodies = Table(
+    "water_bodies", metadata,
+    Column("id", String(64), primary_key=True),
+    Column("name", String(200), nullable=False),
+    Column("use", String(32), nullable=False),
+    Column("timezone", String(64), nullable=False),
+    Column("framework", String(64), nullable=False),
+)
+
+basins = Table(
+    "basins", metadata,
+    Column("water_body_id", String(64), ForeignKey("water_bodies.id"), primary_key=True),
+    Column("id", String(64), primary_key=True),
+    Column("name", String(200), nullable=False),
+    Column("volume_m3", Float, nullable=False),
+    Column("mean_depth_m", Float, nullable=False),
+    Column("area_m2", Float, nullable=False),
+    Column("flows_to", String(64), nullable=False),
+)
+
+stations = Table(
+    "stations", metadata,
+    Column("id", String(64), primary_key=True),
+    Column("kind", String(16), nullable=False),
+    Column("water_body_id", String(64), nullable=True),
+    Column("basin_id", String(64), nullable=True),
+)
+
+ingest_batches = Table(
+    "ingest_batches", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("feed", String(100), nullable=False),
+    Column("origin", Text, nullable=False),  # file path, URL, push client or MQTT topic
+    Column("sha256", String(64), nullable=False),
+    Column("archive_path", Text, nullable=True),
+    Column("received_at", UTCDateTime, nullable=False),
+    Column("status", String(16), nullable=False),  # ok | partial | rejected | failed
+    Column("message", Text, nullable=False, default=""),
+    Column("received", Integer, nullable=False, default=0),
+    Column("accepted", Integer, nullable=False, default=0),
+    Column("flagged", Integer, nullable=False, default=0),
+    Column("rejected", Integer, nullable=False, default=0),
+    Column("duplicate", Integer, nullable=False, default=0),
+    Index("ix_ingest_batches_feed_sha256", "feed", "sha256"),
+)
+
+rejected_rows = Table(
+    "rejected_rows", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("batch_id", Integer, ForeignKey("ingest_batches.id"), nullable=False, index=True),
+    Column("line", Integer, nullable=True),
+    Column("raw", Text, nullable=False),
+    Column("reason", Text, nullable=False),
+)
+
+readings = Table(
+    "readings", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("station_id", String(64), nullable=False),
+    Column("variable", String(64), nullable=False),
+    Column("time_utc", UTCDateTime, nullable=False),
+    Column("value", Float, nullable=True),  # NULL = missing (reported empty), QC flag 9
+    Column("qc_flag", SmallInteger, nullable=False),  # QARTOD: 1 pass, 2 not evaluated, 3 suspect, 4 fail, 9 missing
+    Column("qc_tests", String(64), nullable=False, default=""),  # one digit per QC test, see monitor.ingest.qc
+    Column("source", String(100), nullable=False),
+    Column("batch_id", Integer, ForeignKey("ingest_batches.id"), nullable=False),
+    # The unique index also serves every (station, variable, time range) query: no second index.
+    UniqueConstraint("station_id", "variable", "time_utc", "source"),
+)
+
+driver_forecasts = Table(
+    "driver_forecasts", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("station_id", String(64), nullable=False),
+    Column("variable", String(64), nullable=False),
+    Column("issued_utc", UTCDateTime, nullable=False),
+    Column("valid_utc", UTCDateTime, nullable=False),
+    Column("value", Float, nullable=False),
+    Column("source", String(100), nullable=False),
+    Column("batch_id", Integer, ForeignKey("ingest_batches.id"), nullable=False),
+    UniqueConstraint("station_id", "variable", "issued_utc", "valid_utc", "source"),
+    Index("ix_driver_forecasts_station_issued", "station_id", "issued_utc"),
+)
+
+checkpoints = Table(
+    "checkpoints", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("water_body_id", String(64), ForeignKey("water_bodies.id"), nullable=False),
+    Column("time_utc", UTCDateTime, nullable=False),
+    Column("created_at", UTCDateTime, nullable=False),
+    Column("data", LargeBinary, nullable=False),
+    UniqueConstraint("water_body_id", "time_utc"),
+)
+
+forecast_runs = Table(
+    "forecast_runs", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("water_body_id", String(64), ForeignKey("water_bodies.id"), nullable=False),
+    Column("analysis_utc", UTCDateTime, nullable=False),  # time of the analysis the forecast starts from
+    Column("created_at", UTCDateTime, nullable=False),
+    Column("status", String(16), nullable=False),  # ok | no_data | degraded | failed
+    Column("message", Text, nullable=False, default=""),
+    Column("diagnostics", JSON, nullable=True),
+    UniqueConstraint("water_body_id", "analysis_utc"),
+)
+
+forecast_values = Table(
+    "forecast_values", metadata,
+    Column("run_id", Integer, ForeignKey("forecast_runs.id"), primary_key=True),
+    Column("basin_id", String(64), primary_key=True),
+    Column("valid_utc", UTCDateTime, primary_key=True),
+    Column("quantity", String(64), primary_key=True),   # cyanobacteria_chlorophyll | total_chlorophyll | nitrogen | phosphorus
+    Column("statistic", String(32), primary_key=True),  # mean | q05 | q25 | q50 | q75 | q95 | p_level_<n>
+    Column("value", Float, nullable=False),
+)
+
+alert_status = Table(
+    "alert_status", metadata,
+    Column("water_body_id", String(64), primary_key=True),
+    Column("basin_id", String(64), primary_key=True),
+    Column("level", SmallInteger, nullable=False),  # 0 = no level; n = alert level n
+    Column("since_utc", UTCDateTime, nullable=False),
+    Column("quiet_cycles", Integer, nullable=False, default=0),
+    Column("updated_utc", UTCDateTime, nullable=False),
+)
+
+alert_events = Table(
+    "alert_events", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("water_body_id", String(64), nullable=False),
+    Column("basin_id", String(64), nullable=False),
+    Column("time_utc", UTCDateTime, nullable=False),
+    Column("from_level", SmallInteger, nullable=False),
+    Column("to_level", SmallInteger, nullable=False),
+    Column("probability", Float, nullable=True),
+    Column("observed_ugL", Float, nullable=True),
+    Column("reason", Text, nullable=False, default=""),
+    Index("ix_alert_events_wb_time", "water_body_id", "time_utc"),
+)
+
+subscribers = Table(
+    "subscribers", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("name", String(200), nullable=False),
+    Column("email", String(320), nullable=False),
+    Column("water_body_id", String(64), nullable=False),
+    Column("min_level", SmallInteger, nullable=False, default=1),
+    Column("origin", String(16), nullable=False),  # config | web
+    Column("token", String(64), nullable=False, unique=True),  # for unsubscribe links
+    Column("active", SmallInteger, nullable=False, default=1),
+    Column("created_at", UTCDateTime, nullable=False),
+    UniqueConstraint("email", "water_body_id"),
+)
+
+outbox = Table(
+    "outbox", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("event_id", Integer, ForeignKey("alert_events.id"), nullable=True),
+    Column("recipient", String(320), nullable=False),
+    Column("subject", Text, nullable=False),
+    Column("body", Text, nullable=False),
+    Column("created_at", UTCDateTime, nullable=False),
+    Column("status", String(16), nullable=False),  # pending | sent | dead
+    Column("attempts", Integer, nullable=False, default=0),
+    Column("next_attempt_at", UTCDateTime, nullable=False),
+    Column("last_error", Text, nullable=True),
+    Column("sent_at", UTCDateTime, nullable=True),
+    UniqueConstraint("event_id", "recipient"),
+    Index("ix_outbox_status_next", "status", "next_attempt_at"),
+)

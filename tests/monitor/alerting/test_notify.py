@@ -1,0 +1,312 @@
+"""Outbox, transports and retries: the mailbox folder and a real local SMTP server (aiosmtpd)."""
+
+from __future__ import annotations
+
+import datetime as dt
+import email
+import email.policy
+import socket
+import threading
+
+import pytest
+from aiosmtpd.controller import Controller
+from sqlalchemy import insert, select
+
+from monitor.alerting.caution import CAUTION
+from monitor.config import SmtpConfig, parse_config
+from monitor.store.db import open_store
+from monitor.alerting.notify import (
+    MailboxTransport,
+    SmtpTransport,
+    build_message,
+    enqueue,
+    outbox_counts,
+    render_alert,
+    requeue_dead,
+    retry_delay,
+    send_due,
+    transport_from_config,
+)
+from monitor.store.schema import outbox, water_bodies
+
+UTC = dt.timezone.utc
+T0 = dt.datetime(2026, 8, 1, 7, 0, tzinfo=UTC)
+
+
+def free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+class Recorder:
+    """aiosmtpd handler that keeps every message and answers 451 to the first ``fail_first`` ones."""
+
+    def __init__(self, fail_first: int = 0):
+        self.fail_first = fail_first
+        self.seen = 0
+        self.messages: list[email.message.EmailMessage] = []
+        self.lock = threading.Lock()
+
+    async def handle_DATA(self, server, session, envelope):
+        with self.lock:
+            self.seen += 1
+            if self.seen <= self.fail_first:
+                return "451 4.3.0 Try again later"  # RFC 5321 §4.2.3: transient failure
+            self.messages.append(email.message_from_bytes(envelope.content, policy=email.policy.default))
+        return "250 OK"
+
+
+@pytest.fixture
+def smtp_server():
+    servers = []
+
+    def start(fail_first=0):
+        handler = Recorder(fail_first)
+        controller = Controller(handler, hostname="127.0.0.1", port=free_port())
+        controller.start()
+        servers.append(controller)
+        return handler, SmtpConfig(host="127.0.0.1", port=controller.port, sender="alerts@bloomline.test",
+                                   timeout_s=5.0)
+
+    yield start
+    for c in servers:
+        c.stop()
+
+
+def make_config(tmp_path, mailbox=True):
+    service = {"database": f"sqlite:///{tmp_path / 'notify.sqlite'}", "base_url": "http://bloomline.test"}
+    if mailbox:
+        service["mailbox_dir"] = str(tmp_path / "mailbox")
+    return parse_config({
+        "service": service,
+        "smtp": {"host": "127.0.0.1", "port": 2525, "sender": "alerts@bloomline.test"},
+        "water_bodies": [{"id": "hollin", "name": "Hollin Mere", "use": "drinking-water",
+                          "basins": [{"id": "arm", "name": "Reed Arm", "volume_m3": 1e6, "mean_depth_m": 4.0,
+                                      "area_m2": 2.5e5}]}],
+    })
+
+
+@pytest.fixture
+def engine(tmp_path):
+    cfg = make_config(tmp_path)
+    engine = open_store(cfg.service.database_url)
+    with engine.begin() as conn:
+        conn.execute(insert(water_bodies).values(id="hollin", name="Hollin Mere", use="drinking-water",
+                                                 timezone="UTC", framework="who-1999-drinking-water"))
+    yield engine
+    engine.dispose()
+
+
+def queue(engine, n=1, now=T0):
+    with engine.begin() as conn:
+        return [enqueue(conn, recipient=f"r{i}@hollin.example", subject=f"subject {i}", body=f"body {i}\n",
+                        now=now) for i in range(n)]
+
+
+def rows(engine):
+    with engine.connect() as conn:
+        return conn.execute(select(outbox).order_by(outbox.c.id)).all()
+
+
+class Failing:
+    sender = "alerts@bloomline.test"
+
+    def __init__(self):
+        self.calls = 0
+
+    def send(self, message):
+        self.calls += 1
+        raise ConnectionRefusedError(111, "Connection refused")
+
+
+# ---------------------------------------------------------------- rendering
+
+
+def test_alert_email_names_level_framework_probability_and_carries_the_caution(tmp_path):
+    wb = make_config(tmp_path).water_body("hollin")
+    event = dict(water_body_id="hollin", basin_id="arm", time_utc=T0, from_level=0, to_level=1,
+                 probability=0.72, observed_ugL=0.6, reason="")
+    subject, body = render_alert(wb, event, base_url="http://bloomline.test")
+    # WHO (1999) drinking-water Alert Level 1 at 1 µg/L chlorophyll-a (Chorus & Bartram 1999) [verified]
+    assert subject == "Bloomline alert: Reed Arm, Hollin Mere raised to Alert Level 1 (1 µg/L)"
+    assert "72 %" in body and "0.60 µg/L" in body
+    assert "WHO alert levels for drinking-water sources (1999)" in body
+    assert CAUTION in body
+    assert "http://bloomline.test/water-bodies/hollin" in body
+
+
+def test_cleared_email_says_no_alert_level_forecast_and_never_safe(tmp_path):
+    wb = make_config(tmp_path).water_body("hollin")
+    event = dict(water_body_id="hollin", basin_id="arm", time_utc=T0, from_level=1, to_level=0,
+                 probability=0.1, observed_ugL=None, reason="")
+    subject, body = render_alert(wb, event, base_url="http://bloomline.test")
+    assert "cleared" in subject and "no alert level forecast" in subject
+    assert "not a safety clearance" in body and CAUTION in body
+    assert "is safe" not in body.lower()
+
+
+def test_message_id_is_stable_for_an_outbox_row(engine):
+    queue(engine)
+    row = rows(engine)[0]
+    a = build_message(row, "alerts@bloomline.test", T0)
+    b = build_message(row, "alerts@bloomline.test", T0 + dt.timedelta(hours=3))
+    assert a["Message-ID"] == b["Message-ID"]
+    assert a["Auto-Submitted"] == "auto-generated"  # RFC 3834 §5
+
+
+# ---------------------------------------------------------------- mailbox transport
+
+
+def test_mailbox_transport_writes_one_eml_per_message(engine, tmp_path):
+    queue(engine, 3)
+    transport = transport_from_config(make_config(tmp_path))
+    assert isinstance(transport, MailboxTransport)
+    assert send_due(engine, transport, T0).sent == 3
+    files = sorted((tmp_path / "mailbox").glob("*.eml"))
+    assert len(files) == 3
+    parsed = [email.message_from_bytes(f.read_bytes(), policy=email.policy.default) for f in files]
+    assert sorted(m["To"] for m in parsed) == ["r0@hollin.example", "r1@hollin.example", "r2@hollin.example"]
+    assert {r.status for r in rows(engine)} == {"sent"}
+    assert send_due(engine, transport, T0 + dt.timedelta(hours=1)).sent == 0  # nothing sent twice
+
+
+def test_without_mailbox_the_transport_is_smtp(tmp_path):
+    assert isinstance(transport_from_config(make_config(tmp_path, mailbox=False)), SmtpTransport)
+
+
+# ---------------------------------------------------------------- retries
+
+
+def test_retry_delay_doubles_from_one_minute_up_to_the_cap():
+    assert [retry_delay(n).total_seconds() for n in (1, 2, 3, 4)] == [60, 120, 240, 480]
+    assert retry_delay(30).total_seconds() == 6 * 3600
+
+
+def test_failures_back_off_exponentially_and_end_dead_but_kept(engine):
+    queue(engine)
+    transport, now, tries = Failing(), T0, []
+    for _ in range(50):
+        summary = send_due(engine, transport, now, max_attempts=5)
+        if summary.failed or summary.dead:
+            tries.append(now)
+        row = rows(engine)[0]
+        if row.status == "dead":
+            break
+        now = row.next_attempt_at
+    gaps = [(b - a).total_seconds() for a, b in zip(tries, tries[1:])]
+    assert gaps == [60, 120, 240, 480]
+    row = rows(engine)[0]
+    assert (row.status, row.attempts, transport.calls) == ("dead", 5, 5)
+    assert "ConnectionRefusedError" in row.last_error
+    assert outbox_counts(engine) == {"dead": 1}
+    assert requeue_dead(engine, now) == 1 and rows(engine)[0].status == "pending"
+
+
+def test_a_message_not_yet_due_is_not_tried(engine):
+    queue(engine)
+    transport = Failing()
+    send_due(engine, transport, T0)
+    send_due(engine, transport, T0 + dt.timedelta(seconds=59))
+    assert transport.calls == 1
+
+
+# ---------------------------------------------------------------- a real SMTP server
+
+
+def test_smtp_transport_delivers_to_a_local_server(engine, smtp_server):
+    handler, smtp = smtp_server()
+    queue(engine, 2)
+    assert send_due(engine, SmtpTransport(smtp), T0).sent == 2
+    assert sorted(m["To"] for m in handler.messages) == ["r0@hollin.example", "r1@hollin.example"]
+    assert handler.messages[0]["From"] == "alerts@bloomline.test"
+    assert handler.messages[0].get_content().startswith("body ")
+
+
+def test_smtp_transient_refusal_is_retried_and_then_delivered_once(engine, smtp_server):
+    handler, smtp = smtp_server(fail_first=2)
+    queue(engine)
+    transport, now = SmtpTransport(smtp), T0
+    results = []
+    for _ in range(3):
+        results.append(send_due(engine, transport, now))
+        now = rows(engine)[0].next_attempt_at
+    assert [(s.sent, s.failed) for s in results] == [(0, 1), (0, 1), (1, 0)]
+    assert len(handler.messages) == 1
+    row = rows(engine)[0]
+    assert (row.status, row.attempts, row.last_error) == ("sent", 3, None)
+
+
+def test_smtp_server_down_then_up_loses_nothing(engine, smtp_server):
+    port = free_port()  # nobody listens here yet
+    queue(engine, 2)
+    down = SmtpTransport(SmtpConfig(host="127.0.0.1", port=port, sender="alerts@bloomline.test", timeout_s=2.0))
+    assert send_due(engine, down, T0).failed == 2
+    handler, smtp = smtp_server()
+    assert send_due(engine, SmtpTransport(smtp), T0 + dt.timedelta(minutes=1)).sent == 2
+    assert len(handler.messages) == 2 and outbox_counts(engine) == {"sent": 2}
+
+
+def test_a_second_sender_running_at_the_same_time_skips_a_claimed_message(engine, tmp_path):
+    queue(engine)
+    inner = []
+
+    class Reentrant:
+        sender = "alerts@bloomline.test"
+
+        def send(self, message):
+            # while this message is being handed over, another sender loop runs
+            inner.append(send_due(engine, MailboxTransport(tmp_path / "other"), T0))
+
+    assert send_due(engine, Reentrant(), T0).sent == 1
+    assert inner[0].sent == 0 and not (tmp_path / "other").exists()
+
+
+def test_a_crash_while_sending_leaves_the_message_pending_for_after_the_lease(engine):
+    from monitor.alerting.notify import LEASE
+
+    queue(engine)
+
+    class ProcessDied(BaseException):
+        """Stands for the process being killed mid-send (not an ordinary transport error)."""
+
+    class Crash:
+        sender = "alerts@bloomline.test"
+
+        def send(self, message):
+            raise ProcessDied("killed while sending")
+
+    with pytest.raises(ProcessDied, match="killed while sending"):
+        send_due(engine, Crash(), T0)
+    row = rows(engine)[0]
+    assert (row.status, row.attempts, row.next_attempt_at) == ("pending", 0, T0 + LEASE)
+
+
+def test_alert_change_reaches_the_subscriber_through_smtp(engine, tmp_path, smtp_server):
+    from monitor.alerting.rules import evaluate_run
+    from monitor.store.schema import forecast_runs, forecast_values
+    from monitor.alerting.subscriptions import sync_from_config
+
+    cfg = parse_config({
+        "service": {"database": f"sqlite:///{tmp_path / 'notify.sqlite'}", "base_url": "http://bloomline.test"},
+        "water_bodies": [{"id": "hollin", "name": "Hollin Mere", "use": "drinking-water",
+                          "alerts": {"horizon_days": 2},
+                          "basins": [{"id": "arm", "name": "Reed Arm", "volume_m3": 1e6, "mean_depth_m": 4.0,
+                                      "area_m2": 2.5e5}]}],
+        "subscribers": [{"name": "Gil", "email": "gil@hollin.example", "water_bodies": ["hollin"]}],
+    })
+    sync_from_config(engine, cfg, T0)
+    with engine.begin() as conn:
+        run = conn.execute(insert(forecast_runs).values(water_body_id="hollin", analysis_utc=T0, created_at=T0,
+                                                        status="ok", message="")).inserted_primary_key[0]
+        conn.execute(insert(forecast_values), [
+            dict(run_id=run, basin_id="arm", valid_utc=T0 + dt.timedelta(days=k), quantity="cyanobacteria_chlorophyll",
+                 statistic="p_level_1", value=p) for k, p in enumerate([0.3, 0.6, 0.9])])
+    (event,) = evaluate_run(engine, cfg, "hollin", run, {"arm": 0.4}, now=T0)
+    handler, smtp = smtp_server()
+    assert send_due(engine, SmtpTransport(smtp), T0).sent == 1
+    (msg,) = handler.messages
+    assert msg["To"] == "gil@hollin.example"
+    assert msg["Subject"] == "Bloomline alert: Reed Arm, Hollin Mere raised to Alert Level 1 (1 µg/L)"
+    body = msg.get_content()
+    assert "90 %" in body and CAUTION in body and "/unsubscribe/" in body
