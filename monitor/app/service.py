@@ -57,25 +57,39 @@ class Service:
                    season_start: dt.datetime | None = None) -> list[dict]:
         """One cycle per water body at ``analysis``; computed in parallel where configured.
 
-        A water body whose cycle fails is reported with status "failed"; the
-        others still run.
+        Each water body is guarded at every step (gather, compute, record): one
+        whose cycle fails is reported with status "failed" and the step that
+        failed, and the others still run. Summaries come back in config order.
         """
         wanted = set(only) if only else None
         bodies = [wb for wb in self.config.water_bodies if wanted is None or wb.id in wanted]
-        inputs = [cycle.gather(self.engine, self.config, wb, analysis, season_start=season_start) for wb in bodies]
-        outputs = self.compute_many(inputs)
-        return [cycle.record(self.engine, self.config, out, now=self.clock()) for out in outputs]
+        summaries: dict[str, dict] = {}
+        inputs = []
+        for wb in bodies:
+            try:
+                inputs.append(cycle.gather(self.engine, self.config, wb, analysis, season_start=season_start))
+            except Exception as exc:  # noqa: BLE001 - one water body's failure never stops the others
+                summaries[wb.id] = _failed(wb.id, analysis, "gather", exc)
+        for out in self.compute_many(inputs):
+            try:
+                summaries[out.water_body_id] = cycle.record(self.engine, self.config, out, now=self.clock())
+            except Exception as exc:  # noqa: BLE001
+                summaries[out.water_body_id] = _failed(out.water_body_id, analysis, "record", exc)
+        return [summaries[wb.id] for wb in bodies]
 
     def compute_many(self, inputs: Sequence[cycle.CycleInputs]) -> list[cycle.CycleOutputs]:
-        """Run :func:`monitor.forecasting.cycle.compute` for each input: in-process, or on a Dask cluster."""
+        """Run :func:`monitor.forecasting.cycle.compute` for each input: in-process, or on a Dask cluster.
+
+        An exception in one water body's compute becomes that body's "failed" output.
+        """
         address = self.config.service.dask_scheduler
         if not address or len(inputs) < 2:
-            return [cycle.compute(i) for i in inputs]
+            return [compute_guarded(i) for i in inputs]
         if self._dask is None:
             from monitor.forecasting.parallel import DaskRunner
 
             self._dask = DaskRunner(address)
-        return self._dask.map(cycle.compute, inputs)
+        return self._dask.map(compute_guarded, inputs)
 
     def close(self) -> None:
         """Release the Dask client (if any) and the database connections."""
@@ -88,3 +102,19 @@ class Service:
     def send_mail(self) -> notify.SendSummary:
         """Send the outbox messages due now; failures are retried with back-off."""
         return notify.send_due(self.engine, self.transport, self.clock())
+
+
+def compute_guarded(inputs: cycle.CycleInputs) -> cycle.CycleOutputs:
+    """:func:`cycle.compute`, with any exception turned into a "failed" output of that water body."""
+    try:
+        return cycle.compute(inputs)
+    except Exception as exc:  # noqa: BLE001 - reported as the water body's status, never raised
+        return cycle.CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed",
+                                  f"compute failed: {type(exc).__name__}: {exc}", None, {}, {}, inputs.basin_ids)
+
+
+def _failed(water_body_id: str, analysis: dt.datetime, step: str, exc: Exception) -> dict:
+    """The summary of a water body whose ``step`` raised; logged with its traceback."""
+    log.error("cycle of %s at %s failed in %s", water_body_id, analysis.isoformat(), step, exc_info=exc)
+    return {"water_body": water_body_id, "analysis_utc": analysis.isoformat(), "status": "failed",
+            "message": f"{step} failed: {type(exc).__name__}: {exc}", "run_id": None, "events": []}
