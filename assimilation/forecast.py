@@ -24,13 +24,16 @@ class DailyForecast:
     ``day_end_d`` (K+1,): epoch day at which each forecast day ends (index 0
     is the analysis time itself). ``mean`` (K+1, B), ``quantiles`` (Q, K+1, B)
     for ``QUANTILES``; ``exceedance`` (K+1, B, L): probability of reaching
-    each threshold on that day [-].
+    each threshold on that day [-]; ``members`` (K+1, M, B): each member's
+    daily mean, kept so that forecasts can be scored as ensembles (CRPS,
+    rank histograms).
     """
 
     day_end_d: np.ndarray
     mean: np.ndarray
     quantiles: np.ndarray
     exceedance: np.ndarray
+    members: np.ndarray
 
 
 def daily_statistics(times_d: np.ndarray, values: np.ndarray, t0_d: float, horizon_days: int,
@@ -67,4 +70,5 @@ def daily_statistics(times_d: np.ndarray, values: np.ndarray, t0_d: float, horiz
         mean=mean_per_member.mean(axis=1),
         quantiles=np.quantile(mean_per_member, QUANTILES, axis=1),
         exceedance=exceed,
+        members=mean_per_member,
     )

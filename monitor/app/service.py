@@ -91,12 +91,13 @@ class Service:
             self._dask = DaskRunner(address)
         return self._dask.map(compute_guarded, inputs)
 
-    def close(self) -> None:
-        """Release the Dask client (if any) and the database connections."""
+    def close(self, *, dispose_engine: bool = True) -> None:
+        """Release the Dask client (if any) and, unless told not to, the database connections."""
         if self._dask is not None:
             self._dask.close()
             self._dask = None
-        self.engine.dispose()
+        if dispose_engine:
+            self.engine.dispose()
 
     # ------------------------------------------------------------------ mail
     def send_mail(self) -> notify.SendSummary:

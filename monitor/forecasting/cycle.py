@@ -296,6 +296,20 @@ def forecast_rows(outputs: CycleOutputs):
                     yield basin, valid, quantity, f"p_level_{level + 1}", fc.exceedance[k, b, level]
 
 
+#: Quantities whose member daily means are stored for ensemble verification.
+VERIFIED_QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll")
+
+
+def member_rows(outputs: CycleOutputs):
+    """(basin_id, quantity, array (days, members)) of each member's daily mean, for verification."""
+    for quantity in VERIFIED_QUANTITIES:
+        fc = outputs.forecasts.get(quantity)
+        if fc is None:
+            continue
+        for b, basin in enumerate(outputs.basin_ids):
+            yield basin, quantity, fc.members[:, :, b]
+
+
 def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
                     window: dt.timedelta = dt.timedelta(days=1)) -> dict[str, float | None]:
     """Mean QC-passed phycocyanin (cyanobacteria chlorophyll-a) per basin over the last day [µg/L]."""
@@ -328,7 +342,8 @@ def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.dat
     if outputs.checkpoint is not None:
         store.save_checkpoint(engine, wb.id, analysis, outputs.checkpoint, now=now)
     run_id = store.save_forecast_run(engine, wb.id, analysis, outputs.status, message,
-                                     outputs.diagnostics, forecast_rows(outputs), now=now)
+                                     outputs.diagnostics, forecast_rows(outputs),
+                                     members=member_rows(outputs), now=now)
     events = []
     if outputs.forecasts and warm:
         observed = latest_observed(engine, config, wb, analysis)

@@ -11,6 +11,7 @@ from __future__ import annotations
 import datetime as dt
 from typing import Iterable
 
+import numpy as np
 from sqlalchemy import delete, func, insert, select, update
 from sqlalchemy.engine import Engine
 
@@ -87,11 +88,14 @@ def prune_checkpoints(engine: Engine, water_body_id: str, keep: int = 14) -> int
 def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datetime, status: str,
                       message: str, diagnostics: dict | None,
                       values: Iterable[tuple[str, dt.datetime, str, str, float]],
-                      *, now: dt.datetime | None = None) -> int:
+                      *, members: Iterable[tuple[str, str, np.ndarray]] = (),
+                      now: dt.datetime | None = None) -> int:
     """Store one forecast run and its values; returns the run id.
 
     ``values`` holds (basin_id, valid_utc, quantity, statistic, value) tuples
-    (see ``monitor.store.schema.forecast_values``). A run for the same water body
+    (see ``monitor.store.schema.forecast_values``); ``members`` holds
+    (basin_id, quantity, array (days, members)) of each member's daily mean.
+    A run for the same water body
     and analysis time replaces the earlier one, so re-running a cycle is
     idempotent.
     """
@@ -101,6 +105,7 @@ def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datet
                                                    & (runs.c.analysis_utc == analysis_utc))).scalar()
         if old is not None:
             conn.execute(delete(vals).where(vals.c.run_id == old))
+            conn.execute(delete(schema.forecast_members).where(schema.forecast_members.c.run_id == old))
             conn.execute(update(runs).where(runs.c.id == old).values(
                 status=status, message=message, diagnostics=diagnostics, created_at=now or now_utc()))
             run_id = old
@@ -112,7 +117,25 @@ def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datet
                 for b, t, q, s, v in values]
         if rows:
             conn.execute(insert(vals), rows)
+        ensembles = [dict(run_id=run_id, basin_id=b, quantity=q, days=a.shape[0], members=a.shape[1],
+                          data=np.ascontiguousarray(a, dtype="<f4").tobytes())
+                     for b, q, a in ((b, q, np.asarray(a)) for b, q, a in members)]
+        if ensembles:
+            conn.execute(insert(schema.forecast_members), ensembles)
     return run_id
+
+
+def load_forecast_members(engine: Engine, run_ids: Iterable[int]) -> dict[tuple[int, str, str], np.ndarray]:
+    """Stored member daily means, keyed (run_id, basin_id, quantity) → array (days, members) [µg/L]."""
+    t = schema.forecast_members
+    ids = list(run_ids)
+    out: dict[tuple[int, str, str], np.ndarray] = {}
+    with engine.connect() as conn:
+        for start in range(0, len(ids), 500):
+            for row in conn.execute(select(t).where(t.c.run_id.in_(ids[start:start + 500]))):
+                out[(row.run_id, row.basin_id, row.quantity)] = np.frombuffer(
+                    bytes(row.data), dtype="<f4").astype(float).reshape(row.days, row.members)
+    return out
 
 
 def count_forecast_runs(engine: Engine, water_body_id: str, *, before: dt.datetime | None = None) -> int:

@@ -171,6 +171,16 @@ forecast_values = Table(
     Column("value", Float, nullable=False),
 )
 
+forecast_members = Table(
+    "forecast_members", metadata,
+    Column("run_id", Integer, ForeignKey("forecast_runs.id"), primary_key=True),
+    Column("basin_id", String(64), primary_key=True),
+    Column("quantity", String(64), primary_key=True),
+    Column("days", SmallInteger, nullable=False),     # forecast days K + 1 (day 0 = the analysis)
+    Column("members", SmallInteger, nullable=False),  # ensemble members M
+    Column("data", LargeBinary, nullable=False),      # little-endian float32 (K + 1, M): each member's daily mean
+)
+
 alert_status = Table(
     "alert_status", metadata,
     Column("water_body_id", String(64), primary_key=True),

@@ -1,0 +1,1 @@
+"""Forecast verification: hindcast replays, observed series, baselines and scores of issued runs."""
