@@ -130,7 +130,8 @@ def test_a_basin_flowing_into_itself_is_a_loop():
 def test_an_infinite_basin_volume_is_refused_at_the_basin():
     data = sample_data()
     data["water_bodies"][1]["basins"][0]["volume_m3"] = float("inf")
-    with pytest.raises(ConfigError, match=r"water_bodies\[1\]\.basins\[0\]: Basin 'main': volume_m3 must be a positive"):
+    with pytest.raises(ConfigError,
+                       match=r"water_bodies\[1\]\.basins\[0\]: Basin 'main': volume_m3 must be a positive"):
         parse_config(data, SAMPLE)
 
 
