@@ -27,11 +27,11 @@ from assimilation import integrate
 from assimilation.checkpoint import Checkpoint
 from assimilation.forecast import QUANTILES, daily_statistics
 from assimilation.observe import OBSERVABLE_KINDS, Observations
-from assimilation.parameters import default_spec
-from assimilation.spec import Basin, Drivers, ModelSpec, Network, StateLayout
+from assimilation.spec import Drivers, ModelSpec, StateLayout
 from monitor.alerting import rules as alerts
 from monitor.store import runs as store
 from monitor.config import Config, WaterBodyConfig
+from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.store.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import from_epoch_days, to_epoch_days
@@ -46,33 +46,6 @@ DRIVER_SCENARIOS_C = (-1.5, 0.0, 1.5)
 FIRST_GUESS = {"nitrogen": 300.0, "phosphorus": 8.0, "other_chlorophyll": 2.0, "cyanobacteria": 0.3}
 
 QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll", "nitrogen", "phosphorus")
-
-
-# --------------------------------------------------------------------------
-# Model and filter set-up from the configuration
-
-
-def model_spec(wb: WaterBodyConfig) -> ModelSpec:
-    """The model spec of a configured water body (default parameters plus its overrides)."""
-    ids = [b.id for b in wb.basins]
-    network = Network(downstream=tuple(-1 if b.flows_to == "outlet" else ids.index(b.flows_to) for b in wb.basins),
-                      inflow_basin=tuple(ids.index(i.basin) for i in wb.inflows))
-    basins = [Basin(name=b.id, volume_m3=b.volume_m3, mean_depth_m=b.mean_depth_m, area_m2=b.area_m2)
-              for b in wb.basins]
-    spec = default_spec(basins, network)
-    return dataclasses.replace(spec, **dict(wb.model)) if wb.model else spec
-
-
-def chlorophyll_sensors(config: Config, wb: WaterBodyConfig) -> tuple[str, ...]:
-    """The stations of a water body whose chlorophyll-fluorescence gain the filter estimates."""
-    return tuple(s.id for s in config.stations
-                 if s.water_body == wb.id and "chlorophyll_fluorescence" in s.variables)
-
-
-def filter_config(config: Config, wb: WaterBodyConfig) -> enkf_filter.FilterConfig:
-    return enkf_filter.FilterConfig(members=config.filter.members, method=config.filter.method,
-                                    n_sensors=len(chlorophyll_sensors(config, wb)),
-                                    window_d=config.filter.window_days, **dict(config.filter.options))
 
 
 # --------------------------------------------------------------------------
@@ -101,7 +74,7 @@ class CycleInputs:
 def station_readings(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
                      end: dt.datetime) -> pd.DataFrame:
     """Stored readings of every station of ``wb`` (basins, gauges, weather) in [start, end]."""
-    stations = sorted({s.id for s in config.stations if s.water_body == wb.id} | set(driver_stations(config, wb)))
+    stations = sorted({s.id for s in config.stations_of(wb.id)} | set(driver_stations(config, wb)))
     max_flag = 3 if config.filter.assimilate_suspect else 1
     return readings_frame(engine, stations=stations, start=start, end=end, max_flag=max_flag)
 
@@ -110,7 +83,7 @@ def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
     """The assimilable readings of ``wb``'s basins later than ``after``."""
     if frame.empty:
         return frame
-    basin_stations = {s.id for s in config.stations if s.water_body == wb.id and s.basin is not None}
+    basin_stations = {s.id for s in config.stations_of(wb.id) if s.basin is not None}
     return frame[frame.station_id.isin(basin_stations) & frame.variable.isin(OBSERVABLE_KINDS)
                  & (frame.time_utc > after)]
 
@@ -119,7 +92,7 @@ def to_observations(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig) ->
     """Stored readings → :class:`Observations` with per-variable error sd from the config."""
     if frame.empty:
         return Observations.empty()
-    basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations if s.water_body == wb.id and s.basin}
+    basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations_of(wb.id) if s.basin}
     sensors = chlorophyll_sensors(config, wb)
     sensor_of = {sid: i for i, sid in enumerate(sensors)}
     values = frame.value.to_numpy(dtype=float)
@@ -141,7 +114,7 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
     cyano = spec.cyanobacteria_index
     frame = observations_frame(station_readings(engine, config, wb, at - dt.timedelta(days=14),
                                                 at + dt.timedelta(days=2)), config, wb, at - dt.timedelta(days=14))
-    basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations if s.water_body == wb.id and s.basin}
+    basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations_of(wb.id) if s.basin}
     N = np.full(B, FIRST_GUESS["nitrogen"])
     P = np.full(B, FIRST_GUESS["phosphorus"])
     total = np.full(B, FIRST_GUESS["other_chlorophyll"] + FIRST_GUESS["cyanobacteria"])
@@ -313,8 +286,7 @@ def member_rows(outputs: CycleOutputs):
 def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
                     window: dt.timedelta = dt.timedelta(days=1)) -> dict[str, float | None]:
     """Mean QC-passed phycocyanin (cyanobacteria chlorophyll-a) per basin over the last day [µg/L]."""
-    stations = {s.id: s.basin for s in config.stations
-                if s.water_body == wb.id and s.basin and "phycocyanin" in s.variables}
+    stations = {s.id: s.basin for s in config.stations_of(wb.id, variable="phycocyanin") if s.basin}
     out: dict[str, float | None] = {b.id: None for b in wb.basins}
     if not stations:
         return out

@@ -49,8 +49,7 @@ class DriverSources:
 def driver_sources(config: Config, wb: WaterBodyConfig) -> DriverSources:
     temps = []
     for basin in wb.basins:
-        st = [s.id for s in config.stations if s.water_body == wb.id and s.basin == basin.id
-              and "water_temperature" in s.variables]
+        st = [s.id for s in config.stations_of(wb.id, basin=basin.id, variable="water_temperature")]
         temps.append(st[0] if st else None)
     return DriverSources(tuple(temps), wb.weather_station, tuple(i.gauge for i in wb.inflows))
 

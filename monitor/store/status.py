@@ -122,8 +122,7 @@ def analysis_history(engine: Engine, water_body_id: str, basin_id: str, *, quant
 
 def basin_stations(config, water_body_id: str, basin_id: str, variable: str = OBSERVED_VARIABLE) -> list[str]:
     """Ids of the stations in a basin that measure ``variable``."""
-    return [st.id for st in config.stations
-            if st.water_body == water_body_id and st.basin == basin_id and variable in st.variables]
+    return [st.id for st in config.stations_of(water_body_id, basin=basin_id, variable=variable)]
 
 
 def observed_daily(engine: Engine, config, water_body_id: str, basin_id: str, *,

@@ -9,7 +9,7 @@ import pytest
 
 from monitor.config import ConfigError, load_config, parse_config
 
-SAMPLE = Path(__file__).resolve().parents[2] / "sample_feeds" / "bloomline.toml"
+SAMPLE = Path(__file__).resolve().parents[3] / "sample_feeds" / "bloomline.toml"
 
 
 def sample_data() -> dict:
