@@ -10,6 +10,7 @@ from pathlib import Path
 import click
 
 from monitor.config import ConfigError, load_config
+from monitor.app.hindcast_cli import hindcast
 from monitor.app.ingest_cli import ingest
 
 
@@ -143,6 +144,7 @@ def demo(workdir: str, serve_: bool, as_json: bool, port: int, feeds: str | None
 
 
 main.add_command(ingest)
+main.add_command(hindcast)
 
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
