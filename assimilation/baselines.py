@@ -23,7 +23,7 @@ Forecasters
   origin; with fewer than ``MIN_PAIRS`` pairs, a normal prior of log change
   with sd ``PRIOR_LOG_SD_PER_DAY·sqrt(lag)`` is mixed in.
 * :func:`climatology`: values within ±``CLIMATOLOGY_HALF_WINDOW_D`` days of
-  the valid day of year in previous years.
+  the valid day's calendar date in previous years (a day-of-year window).
 * :func:`ar1_forecast`: a first-order autoregression of log chlorophyll-a,
   with water temperature as regressor when given (statsmodels ``SARIMAX``,
   order (1, 0, 0) with a constant; Box, Jenkins, Reinsel and Ljung 2015,
@@ -56,7 +56,6 @@ MIN_CLIMATOLOGY_VALUES = 10
 MIN_AR_OBSERVATIONS = 30
 """Observed days needed to fit the autoregression (three or four parameters); with
 fewer it falls back to the persistence ensemble (Bloomline's choice)."""
-_HALF_YEAR_D = 183
 
 
 @dataclass(frozen=True)
@@ -123,7 +122,7 @@ def _log_change_members(z, lag, members, min_pairs, prior_log_sd_per_day):
     changes = z[lag:] - z[:-lag] if lag < z.size else np.empty(0)
     changes = changes[np.isfinite(changes)]
     n = changes.size
-    n_empirical = members if n >= min_pairs else int(round(members * n / min_pairs))
+    n_empirical = members if n >= min_pairs else round(members * n / min_pairs)
     parts = []
     if n_empirical:
         parts.append(np.quantile(changes, _positions(n_empirical)))
@@ -172,9 +171,14 @@ def _check_members(members):
         raise ValueError(f"members must be a whole number >= 1, got {members!r}")
 
 
-def _day_of_year(days_d):
-    dates = np.floor(days_d).astype("int64").astype("datetime64[D]")
-    return (dates - dates.astype("datetime64[Y]")).astype(int).astype(float)
+def _anniversaries(day_d: float, years: int) -> np.ndarray:
+    """Epoch days (years,) of the calendar date of ``day_d`` 1..years years earlier
+    (29 February falls on 1 March in common years)."""
+    date = np.datetime64(int(np.floor(day_d)), "D")
+    month = date.astype("datetime64[M]")
+    day_in_month = date - month.astype("datetime64[D]")
+    earlier = (month - 12 * np.arange(1, years + 1)).astype("datetime64[D]") + day_in_month
+    return earlier.astype("int64").astype(float)
 
 
 def climatology(days_d, chl_ugL, origin_d: float, horizon_days: int, *, members: int = MEMBERS,
@@ -183,24 +187,25 @@ def climatology(days_d, chl_ugL, origin_d: float, horizon_days: int, *, members:
     """Day-of-year climatology [µg/L] from previous years.
 
     For a valid day v the sample is every observed value at or before the
-    origin whose day of year lies within ±``half_window_d`` days of v's (on
-    a 365.25-day circle, so exact to a day across leap years) and that lies
-    at least half a year before v, i.e. the same season of earlier years.
-    Members are the sample's log quantiles at ``(j − 0.5)/M``; a lead with
-    fewer than ``min_values`` values is NaN (no previous year).
+    origin within ±``half_window_d`` days of v's calendar date in any earlier
+    year (the same season of previous years). Members are the sample's log
+    quantiles at ``(j − 0.5)/M``; a lead with fewer than ``min_values``
+    values is NaN (no previous year, or too few values in it).
     """
     grid, _, valid = _history(days_d, chl_ugL, origin_d, horizon_days)
     _check_members(members)
+    if int(half_window_d) != half_window_d or not 0 <= half_window_d < 183:
+        raise ValueError(f"half_window_d must be a whole number of days in 0..182, got {half_window_d!r}")
     grid_days = origin_d - np.arange(grid.size)[::-1]
     seen = np.isfinite(grid)
     z, obs_days = transform.to_log(grid[seen], floor_ugL), grid_days[seen]
-    doy_obs = _day_of_year(obs_days)
     out = np.full((members, valid.size), np.nan)
     short = []
     for k, v in enumerate(valid):
-        distance = np.abs(doy_obs - _day_of_year(np.array([v]))[0])
-        distance = np.minimum(distance, 365.25 - distance)
-        sample = z[(distance <= half_window_d) & (obs_days <= v - _HALF_YEAR_D)]
+        years = int((v - obs_days[0]) // 365) + 1
+        centres = _anniversaries(v, years)
+        distance = np.abs(obs_days[:, None] - (centres[None, :] + (v - np.floor(v)))).min(axis=1)
+        sample = z[distance <= half_window_d + 1e-9]
         if sample.size >= min_values:
             out[:, k] = transform.from_log(np.quantile(sample, _positions(members)))
         else:
@@ -233,8 +238,11 @@ def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, tempera
     observed temperature is held. Lead h: members
     ``exp(mean_h + sd_h·Φ⁻¹((j − 0.5)/M))`` from the forecast mean and
     variance. With fewer than ``min_observations`` observed days, or when
-    the fit fails or does not converge, the persistence ensemble is
-    returned instead (``method`` says which ran, ``note`` why).
+    the fit raises or gives a non-finite forecast, the persistence ensemble
+    is returned instead (``method`` says which ran, ``note`` why). Warnings
+    from statsmodels are not raised but recorded in ``note``; a fit it
+    reports as not converged is kept (its L-BFGS line search can stop
+    close to the optimum of this small likelihood), so read the note.
     """
     grid, temp, valid = _history(days_d, chl_ugL, origin_d, horizon_days, extra=temperature_C)
     _check_members(members)
@@ -267,8 +275,6 @@ def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, tempera
             sd = np.sqrt(np.asarray(prediction.var_pred_mean, dtype=float))
         except (ValueError, np.linalg.LinAlgError) as error:
             return fallback(f"the autoregression could not be fitted ({error})")
-    if not result.mle_retvals.get("converged", False):
-        return fallback("the autoregression's likelihood maximisation did not converge")
     if not (np.all(np.isfinite(mean)) and np.all(np.isfinite(sd))):
         return fallback("the autoregression gave a non-finite forecast")
     notes += [f"statsmodels: {w.message}" for w in caught]

@@ -81,14 +81,15 @@ def brier_decomposition(p, o, bins: int | None = None) -> BrierDecomposition:
     """
     p, o = _check(p, o)
     if bins is None:
-        _, label = np.unique(p, return_inverse=True)
+        p_bar, label = np.unique(p, return_inverse=True)
+        count = np.bincount(label).astype(float)
     else:
         if int(bins) != bins or bins < 1:
             raise ValueError(f"bins must be a positive whole number or None, got {bins!r}")
         label = np.minimum((p * int(bins)).astype(int), int(bins) - 1)
         _, label = np.unique(label, return_inverse=True)
-    count = np.bincount(label).astype(float)
-    p_bar = np.bincount(label, weights=p) / count
+        count = np.bincount(label).astype(float)
+        p_bar = np.bincount(label, weights=p) / count
     o_bar = np.bincount(label, weights=o.astype(float)) / count
     n = p.size
     base = float(o.mean())
