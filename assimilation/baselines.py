@@ -1,0 +1,291 @@
+"""Statistical baseline forecasters of a daily chlorophyll-a series, for verification.
+
+Each forecaster sees a daily series ``chl_ugL`` (T,) [µg/L] on ``days_d``
+(T,) [epoch days, whole days apart; missing days either absent or NaN] and
+a forecast ``origin_d`` [epoch day]: the last day whose value it may use.
+Values on days after the origin are dropped before anything else, so a
+forecast never depends on them. Lead h = 1..H verifies on day
+``origin_d + h``. Each returns a :class:`BaselineForecast` whose members
+(M, H) [µg/L] are per-lead quantiles of the forecast distribution, sorted
+within each lead: they describe each lead's marginal distribution, not
+trajectories across leads.
+
+Chlorophyll-a is modelled in natural-log space (multiplicative changes),
+values below ``LOG_FLOOR_UGL`` counting as the floor (``assimilation.scores``).
+Members sit at the fixed plotting positions ``(j − 0.5)/M``, j = 1..M
+(Hazen 1914), so every forecaster is deterministic.
+
+Forecasters
+-----------
+* :func:`persistence`: the last observed value, one member.
+* :func:`persistence_ensemble`: the last observed value times
+  ``exp(Δ)``, Δ the series' own log changes over the same lag before the
+  origin; with fewer than ``MIN_PAIRS`` pairs, a normal prior of log change
+  with sd ``PRIOR_LOG_SD_PER_DAY·sqrt(lag)`` is mixed in.
+* :func:`climatology`: values within ±``CLIMATOLOGY_HALF_WINDOW_D`` days of
+  the valid day's calendar date in previous years (a day-of-year window).
+* :func:`ar1_forecast`: a first-order autoregression of log chlorophyll-a,
+  with water temperature as regressor when given (statsmodels ``SARIMAX``,
+  order (1, 0, 0) with a constant; Box, Jenkins, Reinsel and Ljung 2015,
+  *Time Series Analysis*, 5th ed., Wiley), whose Kalman filter skips the
+  missing days (Durbin and Koopman 2012, *Time Series Analysis by State
+  Space Methods*, 2nd ed., OUP).
+"""
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+from statsmodels.tsa.statespace.sarimax import SARIMAX
+
+from assimilation import transform
+from assimilation.scores import LOG_FLOOR_UGL
+
+MEMBERS = 60
+MIN_PAIRS = 30
+"""Pairs of values at a lag needed to use their log changes alone (Bloomline's choice)."""
+PRIOR_LOG_SD_PER_DAY = 0.15
+"""sd [log units per sqrt(day)] of the prior log change, growing as sqrt(lag): a
+random walk with about 15 % day-to-day change of chlorophyll-a, a round figure
+of the order seen in lake monitoring (common practice, not from a published source)."""
+CLIMATOLOGY_HALF_WINDOW_D = 15
+MIN_CLIMATOLOGY_VALUES = 10
+"""Values needed in the day-of-year window for a climatological forecast (Bloomline's choice)."""
+MIN_AR_OBSERVATIONS = 30
+"""Observed days needed to fit the autoregression (three or four parameters); with
+fewer it falls back to the persistence ensemble (Bloomline's choice)."""
+
+
+@dataclass(frozen=True)
+class BaselineForecast:
+    """Forecast of one baseline: ``members_ugL`` (M, H) [µg/L] for leads 1..H
+    on ``valid_day_d`` (H,) [epoch days]; a lead without a forecast is NaN.
+    ``method`` names the forecaster that produced the members (it differs from
+    the one called after a fallback); ``note`` says why, or is empty."""
+
+    method: str
+    valid_day_d: np.ndarray
+    members_ugL: np.ndarray
+    note: str = ""
+
+
+def _positions(m: int) -> np.ndarray:
+    return (np.arange(1, m + 1) - 0.5) / m
+
+
+def _history(days_d, chl_ugL, origin_d, horizon_days, extra=None):
+    """The series on a contiguous daily grid ending at the origin (days after it dropped)."""
+    days_d = np.asarray(days_d, dtype=float)
+    chl = np.asarray(chl_ugL, dtype=float)
+    if days_d.ndim != 1 or chl.shape != days_d.shape:
+        raise ValueError(f"expected days_d and chl_ugL of one shape (T,), got {days_d.shape} and {chl.shape}")
+    if extra is not None and np.shape(extra) != days_d.shape:
+        raise ValueError(f"temperature_C must match days_d {days_d.shape}, got {np.shape(extra)}")
+    if not np.isfinite(origin_d):
+        raise ValueError(f"origin_d must be a finite epoch day, got {origin_d!r}")
+    if int(horizon_days) != horizon_days or horizon_days < 1:
+        raise ValueError(f"horizon_days must be a whole number >= 1, got {horizon_days!r}")
+    keep = days_d <= origin_d + 1e-9
+    days_d, chl = days_d[keep], chl[keep]
+    offset = origin_d - days_d
+    if not np.all(np.isfinite(days_d)) or np.any(np.abs(offset - np.round(offset)) > 1e-6):
+        raise ValueError("days_d must be finite and a whole number of days from origin_d")
+    if days_d.size > 1 and np.any(np.diff(days_d) <= 0):
+        raise ValueError("days_d must be strictly increasing")
+    if np.any(chl < 0):
+        raise ValueError("chl_ugL must be >= 0 (NaN where missing)")
+    if not np.any(np.isfinite(chl)):
+        raise ValueError(f"no observed chlorophyll-a at or before the origin {origin_d}")
+    lag = np.round(offset).astype(int)                 # days before the origin
+    size = int(lag.max()) + 1
+    grid = np.full(size, np.nan)
+    grid[size - 1 - lag] = chl
+    extra_grid = None
+    if extra is not None:
+        extra_grid = np.full(size, np.nan)
+        extra_grid[size - 1 - lag] = np.asarray(extra, dtype=float)[keep]
+    valid = origin_d + np.arange(1, int(horizon_days) + 1, dtype=float)
+    return grid, extra_grid, valid
+
+
+def persistence(days_d, chl_ugL, origin_d: float, horizon_days: int) -> BaselineForecast:
+    """The last observed value at or before the origin [µg/L] at every lead (one member)."""
+    grid, _, valid = _history(days_d, chl_ugL, origin_d, horizon_days)
+    last = grid[np.flatnonzero(np.isfinite(grid))[-1]]
+    return BaselineForecast("persistence", valid, np.full((1, valid.size), last))
+
+
+def _log_change_members(z, lag, members, min_pairs, prior_log_sd_per_day):
+    """Members (M,) of the log change over ``lag`` days, and whether the prior was mixed in."""
+    changes = z[lag:] - z[:-lag] if lag < z.size else np.empty(0)
+    changes = changes[np.isfinite(changes)]
+    n = changes.size
+    n_empirical = members if n >= min_pairs else round(members * n / min_pairs)
+    parts = []
+    if n_empirical:
+        parts.append(np.quantile(changes, _positions(n_empirical)))
+    if n_empirical < members:
+        sd = prior_log_sd_per_day * np.sqrt(lag)
+        parts.append(sd * stats.norm.ppf(_positions(members - n_empirical)))
+    return np.sort(np.concatenate(parts)), n < min_pairs
+
+
+def persistence_ensemble(days_d, chl_ugL, origin_d: float, horizon_days: int, *, members: int = MEMBERS,
+                         min_pairs: int = MIN_PAIRS, prior_log_sd_per_day: float = PRIOR_LOG_SD_PER_DAY,
+                         floor_ugL: float = LOG_FLOOR_UGL) -> BaselineForecast:
+    """Last observed value times exp of the series' own log changes [µg/L].
+
+    For lead h the lag is ``h + g`` days, g the days from the last observed
+    value to the origin. The log changes over that lag between observed
+    pairs before the origin give the members, as quantiles at ``(j − 0.5)/M``.
+    With n < ``min_pairs`` pairs, ``round(M·n/min_pairs)`` members come from
+    their quantiles and the rest from the prior N(0, (sd·sqrt(lag))²) with
+    sd = ``prior_log_sd_per_day`` [log units/sqrt(day)]: a mixture weighting
+    the data by n/min_pairs. members >= 1; min_pairs >= 1.
+    """
+    grid, _, valid = _history(days_d, chl_ugL, origin_d, horizon_days)
+    _check_members(members)
+    if int(min_pairs) != min_pairs or min_pairs < 1:
+        raise ValueError(f"min_pairs must be a whole number >= 1, got {min_pairs!r}")
+    if not prior_log_sd_per_day > 0:
+        raise ValueError(f"prior_log_sd_per_day must be > 0, got {prior_log_sd_per_day!r}")
+    z = transform.to_log(grid, floor_ugL)
+    last = np.flatnonzero(np.isfinite(z))[-1]
+    gap = grid.size - 1 - last
+    out = np.empty((members, valid.size))
+    short = []
+    for k in range(valid.size):
+        lag = k + 1 + gap
+        d, mixed = _log_change_members(z[: last + 1], lag, members, min_pairs, prior_log_sd_per_day)
+        out[:, k] = transform.from_log(z[last] + d)
+        if mixed:
+            short.append(k + 1)
+    note = f"prior mixed in at leads {short} (fewer than {min_pairs} pairs)" if short else ""
+    return BaselineForecast("persistence_ensemble", valid, out, note)
+
+
+def _check_members(members):
+    if int(members) != members or members < 1:
+        raise ValueError(f"members must be a whole number >= 1, got {members!r}")
+
+
+def _anniversaries(day_d: float, years: int) -> np.ndarray:
+    """Epoch days (years,) of the calendar date of ``day_d`` 1..years years earlier
+    (29 February falls on 1 March in common years)."""
+    date = np.datetime64(int(np.floor(day_d)), "D")
+    month = date.astype("datetime64[M]")
+    day_in_month = date - month.astype("datetime64[D]")
+    earlier = (month - 12 * np.arange(1, years + 1)).astype("datetime64[D]") + day_in_month
+    return earlier.astype("int64").astype(float)
+
+
+def climatology(days_d, chl_ugL, origin_d: float, horizon_days: int, *, members: int = MEMBERS,
+                half_window_d: int = CLIMATOLOGY_HALF_WINDOW_D, min_values: int = MIN_CLIMATOLOGY_VALUES,
+                floor_ugL: float = LOG_FLOOR_UGL) -> BaselineForecast:
+    """Day-of-year climatology [µg/L] from previous years.
+
+    For a valid day v the sample is every observed value at or before the
+    origin within ±``half_window_d`` days of v's calendar date in any earlier
+    year (the same season of previous years). Members are the sample's log
+    quantiles at ``(j − 0.5)/M``; a lead with fewer than ``min_values``
+    values is NaN (no previous year, or too few values in it).
+    """
+    grid, _, valid = _history(days_d, chl_ugL, origin_d, horizon_days)
+    _check_members(members)
+    if int(half_window_d) != half_window_d or not 0 <= half_window_d < 183:
+        raise ValueError(f"half_window_d must be a whole number of days in 0..182, got {half_window_d!r}")
+    grid_days = origin_d - np.arange(grid.size)[::-1]
+    seen = np.isfinite(grid)
+    z, obs_days = transform.to_log(grid[seen], floor_ugL), grid_days[seen]
+    out = np.full((members, valid.size), np.nan)
+    short = []
+    for k, v in enumerate(valid):
+        years = int((v - obs_days[0]) // 365) + 1
+        centres = _anniversaries(v, years)
+        distance = np.abs(obs_days[:, None] - (centres[None, :] + (v - np.floor(v)))).min(axis=1)
+        sample = z[distance <= half_window_d + 1e-9]
+        if sample.size >= min_values:
+            out[:, k] = transform.from_log(np.quantile(sample, _positions(members)))
+        else:
+            short.append(k + 1)
+    note = f"no climatology at leads {short} (fewer than {min_values} values in previous years)" if short else ""
+    return BaselineForecast("climatology", valid, out, note)
+
+
+def _fill_gaps(values):
+    """Linear interpolation over NaN in time, ends held at the nearest value; None if all NaN."""
+    seen = np.isfinite(values)
+    if not seen.any():
+        return None
+    t = np.arange(values.size, dtype=float)
+    return np.interp(t, t[seen], values[seen])
+
+
+def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, temperature_C=None,
+                 future_temperature_C=None, members: int = MEMBERS,
+                 min_observations: int = MIN_AR_OBSERVATIONS, floor_ugL: float = LOG_FLOOR_UGL) -> BaselineForecast:
+    """AR(1) forecast of log chlorophyll-a, members at fixed normal quantiles [µg/L].
+
+    The model, fitted by maximum likelihood on the log series from its first
+    observed day to the origin (missing days left missing):
+    ``SARIMAX(order=(1, 0, 0), trend="c")``, with ``exog`` the water
+    temperature [°C] when ``temperature_C`` (T,) is given (regression with
+    AR(1) errors; gaps in the temperature history filled by linear
+    interpolation in time). ``future_temperature_C`` (H,) [°C] is the
+    temperature for the leads (e.g. a driver forecast); without it the last
+    observed temperature is held. Lead h: members
+    ``exp(mean_h + sd_h·Φ⁻¹((j − 0.5)/M))`` from the forecast mean and
+    variance. With fewer than ``min_observations`` observed days, or when
+    the fit raises or gives a non-finite forecast, the persistence ensemble
+    is returned instead (``method`` says which ran, ``note`` why). Warnings
+    from statsmodels are not raised but recorded in ``note``; a fit it
+    reports as not converged is kept (its L-BFGS line search can stop
+    close to the optimum of this small likelihood), so read the note.
+    """
+    grid, temp, valid = _history(days_d, chl_ugL, origin_d, horizon_days, extra=temperature_C)
+    _check_members(members)
+    if future_temperature_C is not None and temperature_C is None:
+        raise ValueError("future_temperature_C needs the temperature history temperature_C")
+    fallback = _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL)
+    first = np.flatnonzero(np.isfinite(grid))[0]
+    z = transform.to_log(grid[first:], floor_ugL)
+    n_obs = int(np.isfinite(z).sum())
+    if n_obs < min_observations:
+        return fallback(f"{n_obs} observed days before the origin, fewer than {min_observations}")
+    exog = future = None
+    notes = []
+    if temp is not None:
+        exog = _fill_gaps(temp[first:])
+        if exog is None:
+            notes.append("no water temperature before the origin; fitted without it")
+        elif future_temperature_C is not None:
+            future = np.asarray(future_temperature_C, dtype=float)
+            if future.shape != valid.shape or not np.all(np.isfinite(future)):
+                raise ValueError(f"future_temperature_C must be finite with shape {valid.shape}, got {future.shape}")
+        else:
+            future = np.full(valid.size, exog[-1])
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            result = SARIMAX(z, exog=exog, order=(1, 0, 0), trend="c").fit(disp=False)
+            prediction = result.get_forecast(valid.size, exog=None if exog is None else future[:, None])
+            mean = np.asarray(prediction.predicted_mean, dtype=float)
+            sd = np.sqrt(np.asarray(prediction.var_pred_mean, dtype=float))
+        except (ValueError, np.linalg.LinAlgError) as error:
+            return fallback(f"the autoregression could not be fitted ({error})")
+    if not (np.all(np.isfinite(mean)) and np.all(np.isfinite(sd))):
+        return fallback("the autoregression gave a non-finite forecast")
+    notes += [f"statsmodels: {w.message}" for w in caught]
+    out = transform.from_log(mean + sd * stats.norm.ppf(_positions(members))[:, None])
+    return BaselineForecast("ar1", valid, out, "; ".join(notes))
+
+
+def _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL):
+    def run(reason: str) -> BaselineForecast:
+        base = persistence_ensemble(days_d, chl_ugL, origin_d, horizon_days, members=members, floor_ugL=floor_ugL)
+        note = f"fell back to the persistence ensemble: {reason}"
+        return BaselineForecast(base.method, base.valid_day_d, base.members_ugL,
+                                note + (f"; {base.note}" if base.note else ""))
+    return run
