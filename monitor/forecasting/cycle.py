@@ -22,9 +22,10 @@ import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
-from assimilation import filter as enkf_filter
-from assimilation import integrate
+from assimilation import filter_cycle, integrate
+from assimilation.augmentation import split
 from assimilation.checkpoint import Checkpoint
+from assimilation.filter_config import FilterConfig
 from assimilation.forecast import QUANTILES, daily_statistics
 from assimilation.observe import OBSERVABLE_KINDS, Observations
 from assimilation.parameters import default_spec
@@ -69,10 +70,10 @@ def chlorophyll_sensors(config: Config, wb: WaterBodyConfig) -> tuple[str, ...]:
                  if s.water_body == wb.id and "chlorophyll_fluorescence" in s.variables)
 
 
-def filter_config(config: Config, wb: WaterBodyConfig) -> enkf_filter.FilterConfig:
-    return enkf_filter.FilterConfig(members=config.filter.members, method=config.filter.method,
-                                    n_sensors=len(chlorophyll_sensors(config, wb)),
-                                    window_d=config.filter.window_days, **dict(config.filter.options))
+def filter_config(config: Config, wb: WaterBodyConfig) -> FilterConfig:
+    return FilterConfig(members=config.filter.members, method=config.filter.method,
+                        n_sensors=len(chlorophyll_sensors(config, wb)),
+                        window_d=config.filter.window_days, **dict(config.filter.options))
 
 
 # --------------------------------------------------------------------------
@@ -84,7 +85,7 @@ class CycleInputs:
     water_body_id: str
     analysis_d: float
     spec: ModelSpec
-    filter: enkf_filter.FilterConfig
+    filter: FilterConfig
     checkpoint: bytes | None
     start_d: float
     initial_state: np.ndarray | None
@@ -222,18 +223,18 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
     spec, cfg = inputs.spec, inputs.filter
     if inputs.checkpoint is None:
         rng = np.random.default_rng(inputs.seed)
-        ckpt = enkf_filter.initial_checkpoint(spec, cfg, inputs.start_d, rng, initial_state=inputs.initial_state)
+        ckpt = filter_cycle.initial_checkpoint(spec, cfg, inputs.start_d, rng, initial_state=inputs.initial_state)
     else:
         ckpt = Checkpoint.from_bytes(inputs.checkpoint)
     try:
-        result = enkf_filter.assimilate(ckpt, inputs.observations, spec, inputs.drivers, cfg, inputs.analysis_d)
+        result = filter_cycle.assimilate(ckpt, inputs.observations, spec, inputs.drivers, cfg, inputs.analysis_d)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
         return CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed", f"analysis failed: {exc}",
                             None, {}, {}, inputs.basin_ids)
     if result.status == "failed":
         return CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed", result.message, None,
                             _jsonable(result.diagnostics), {}, inputs.basin_ids)
-    states, params, _gains = enkf_filter.split(result.checkpoint, spec)
+    states, params, _gains = split(result.checkpoint, spec)
     forecasts = _forecast(states, params, spec, inputs)
     return CycleOutputs(inputs.water_body_id, inputs.analysis_d, result.status, result.message,
                         result.checkpoint.to_bytes(), _jsonable(result.diagnostics), forecasts, inputs.basin_ids)
