@@ -14,7 +14,9 @@ multiplicative inflation, a well-tuned filter must be below 0.30
 import numpy as np
 import pytest
 
-from assimilation import enkf, inflation, localization, lorenz96
+from assimilation import enkf, inflation, localization
+
+import lorenz96
 
 N_VARIABLES = 40
 MEMBERS = 20
