@@ -2,8 +2,7 @@
 
 Expected values: Monod (1950); Herbert, Elsworth & Telling (1956) J. Gen.
 Microbiol. 14:601; Hsu, Hubbell & Waltman (1977) SIAM J. Appl. Math. 32:366;
-Tilman (1982) Resource Competition and Community Structure. Worked numbers
-in ../shared/REFERENCES.md [computed].
+Tilman (1982) Resource Competition and Community Structure.
 """
 from dataclasses import replace
 
