@@ -56,6 +56,7 @@ import math
 import numpy as np
 
 from assimilation import hydraulics, model
+from assimilation.forcing import check_time_range, forcing_at
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 
 _TINY = 1e-300
@@ -271,7 +272,7 @@ def _run(E, spec, drivers, t0_d, save_times, dt_d, params):
         raise ValueError("save_times_d must be a non-empty 1-D sequence of epoch days")
     if save_times[0] < t0_d or np.any(np.diff(save_times) < 0):
         raise ValueError("save_times_d must be non-decreasing and not before t0_d")
-    model.check_time_range(drivers, t0_d, save_times[-1])
+    check_time_range(drivers, t0_d, save_times[-1])
     co = model.coefficients(spec, params, E.shape[0])
     net = _Network(spec)
     M = E.shape[0]
@@ -289,12 +290,12 @@ def _run(E, spec, drivers, t0_d, save_times, dt_d, params):
         return out
 
     h_all = np.diff(grid)
-    nodes = model.forcing_at(drivers, spec, grid)
+    nodes = forcing_at(drivers, spec, grid)
     volume = np.array([b.volume_m3 for b in spec.basins])
     dilution = hydraulics.basin_outflows(spec.network, nodes.inflow_m3_s) * hydraulics.SECONDS_PER_DAY / volume
     source = hydraulics.inflow_source(spec, nodes.inflow_m3_s, nodes.inflow_concentration_ugL)   # (K+1, B, S)
     temp = nodes.water_temperature_C
-    par = model.forcing_at(drivers, spec, (grid[:-1, None] + h_all[:, None] * _GAUSS_NODES).ravel()).par_W_m2
+    par = forcing_at(drivers, spec, (grid[:-1, None] + h_all[:, None] * _GAUSS_NODES).ravel()).par_W_m2
     par = par.reshape(n_steps, _GAUSS_NODES.size, spec.n_basins)
     for k in range(n_steps):
         C = _step(C, h_all[k], co, net, temp[k], temp[k + 1], par[k],

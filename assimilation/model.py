@@ -1,4 +1,4 @@
-"""The nutrient–phytoplankton tendency function and its mass bookkeeping.
+"""The nutrient–phytoplankton process fluxes and tendency function.
 
 Per basin b (a well-mixed box, volume V_b, mean depth z_b) and group g,
 with N dissolved inorganic nitrogen, P soluble reactive phosphorus and A_g
@@ -26,6 +26,8 @@ Surface Water-Quality Modeling, ch. 33–34).
 
 Everything here is vectorised over (members, basins, groups); arrays of one
 member's basins are ``(M, B, 2 + G)`` "blocks" (see ``StateLayout.blocks``).
+Drivers at the model's times come from :mod:`forcing`; nutrient totals and
+the mass budget built on :func:`process_fluxes` are in :mod:`budget`.
 """
 from __future__ import annotations
 
@@ -34,10 +36,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from assimilation import hydraulics, kinetics, light
+from assimilation.forcing import Forcing, check_members, forcing_at
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 
+#: Group parameters that may differ between ensemble members (fields of
+#: :class:`assimilation.spec.Group`, keys of ``params`` throughout) [1/d].
 PARAMETER_KEYS = ("mu_max_20_per_d", "mortality_20_per_d")
-KG_PER_MG = 1e-6
 
 
 @dataclass(frozen=True, eq=False)
@@ -125,56 +129,6 @@ def coefficients(spec: ModelSpec, params: dict | None = None, n_members: int | N
     )
 
 
-@dataclass(frozen=True, eq=False)
-class Forcing:
-    """Drivers at K times: water_temperature_C (K, B) or (K, M, B) [°C], par_W_m2 (K, B)
-    [W/m² PAR at the surface], inflow_m3_s (K, I) [m³/s] and
-    inflow_concentration_ugL (K, I, 2 + G) [µg/L] (N, P, chlorophyll per group)."""
-
-    water_temperature_C: np.ndarray
-    par_W_m2: np.ndarray
-    inflow_m3_s: np.ndarray
-    inflow_concentration_ugL: np.ndarray
-
-
-def check_time_range(drivers: Drivers, t_first: float, t_last: float) -> None:
-    """Raise ValueError unless [t_first, t_last] lies within the driver times."""
-    t = drivers.time_d
-    tol = 1e-9 * max(1.0, abs(t[-1]))
-    if t_first < t[0] - tol or t_last > t[-1] + tol:
-        raise ValueError(f"drivers cover epoch days {t[0]:.6f}..{t[-1]:.6f}, "
-                         f"the model needs {t_first:.6f}..{t_last:.6f}")
-
-
-def _interpolate(time_d: np.ndarray, values: np.ndarray, times: np.ndarray) -> np.ndarray:
-    if time_d.size == 1:
-        return np.broadcast_to(values[:1], (times.size,) + values.shape[1:]).copy()
-    k = np.clip(np.searchsorted(time_d, times, side="right") - 1, 0, time_d.size - 2)
-    w = np.clip((times - time_d[k]) / (time_d[k + 1] - time_d[k]), 0.0, 1.0)
-    w = w.reshape((-1,) + (1,) * (values.ndim - 1))
-    return (1.0 - w) * values[k] + w * values[k + 1]
-
-
-def forcing_at(drivers: Drivers, spec: ModelSpec, times_d) -> Forcing:
-    """Drivers interpolated linearly to ``times_d`` (K,) [epoch days]."""
-    drivers.check_against(spec)
-    times = np.atleast_1d(np.asarray(times_d, dtype=float))
-    check_time_range(drivers, times.min(), times.max())
-    t = drivers.time_d
-    B, I, G = spec.n_basins, spec.n_inflows, spec.n_groups
-    temperature = _interpolate(t, drivers.water_temperature_C, times)
-    shortwave = _interpolate(t, drivers.shortwave_W_m2, times)
-    if shortwave.ndim == 1:
-        shortwave = np.repeat(shortwave[:, None], B, axis=1)
-    inflow = _interpolate(t, drivers.inflow_m3_s, times)
-    conc = np.zeros((times.size, I, 2 + G))
-    conc[..., 0] = _interpolate(t, drivers.inflow_nitrogen_ugL, times)
-    conc[..., 1] = _interpolate(t, drivers.inflow_phosphorus_ugL, times)
-    if drivers.inflow_chlorophyll_ugL is not None:
-        conc[..., 2:] = _interpolate(t, drivers.inflow_chlorophyll_ugL, times)
-    return Forcing(temperature, spec.par_fraction * shortwave, inflow, conc)
-
-
 def light_factor(C: np.ndarray, co: Coefficients, par: np.ndarray, par_weights=None) -> np.ndarray:
     """Steele's factor averaged over the mixed depth, with self-shading. [-]
 
@@ -206,16 +160,6 @@ def _rates(C, co, temperature, par, par_weights=None):
     m = kinetics.mortality_rate(co.mortality_20, co.theta_mortality, T)
     s = kinetics.settling_rate(co.settling, co.depth_m[:, None])
     return mu, m, s, share
-
-
-def process_rates(C: np.ndarray, co: Coefficients, temperature: np.ndarray, par: np.ndarray, par_weights=None):
-    """Specific rates of each group [1/d], each (M, B, G).
-
-    C blocks (M, B, 2 + G) [µg/L]; temperature (B,) or (M, B) [°C]; par and
-    par_weights as in :func:`light_factor`. Returns (growth, mortality, settling).
-    """
-    mu, m, s, _ = _rates(C, co, temperature, par, par_weights)
-    return mu, m, s
 
 
 @dataclass(frozen=True, eq=False)
@@ -298,19 +242,12 @@ def tendency(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict | No
     """
     layout = StateLayout(spec)
     E = np.asarray(E, dtype=float)
-    _check_temperature_members(forcing, E.shape[0])
+    check_members(forcing, E.shape[0])
     C = layout.blocks(E)
     co = coefficients(spec, params, E.shape[0])
     out = reaction_tendency(C, co, forcing.water_temperature_C[0], forcing.par_W_m2[0])
     out = out + transport_tendency(C, spec, forcing.inflow_m3_s[0], forcing.inflow_concentration_ugL[0])
     return out.reshape(out.shape[:-2] + (layout.n_state,))
-
-
-def _check_temperature_members(forcing: Forcing, n_members: int) -> None:
-    temperature = forcing.water_temperature_C
-    if temperature.ndim == 3 and temperature.shape[1] != n_members:
-        raise ValueError(f"Drivers.water_temperature_C has one series for each of {temperature.shape[1]} members "
-                         f"(shape (T, M, B)), but the ensemble has {n_members} members")
 
 
 def rhs(t: float, y: np.ndarray, spec: ModelSpec, drivers: Drivers, params: dict | None = None) -> np.ndarray:
@@ -321,93 +258,3 @@ def rhs(t: float, y: np.ndarray, spec: ModelSpec, drivers: Drivers, params: dict
     n_state = StateLayout(spec).n_state
     E = np.asarray(y, dtype=float).reshape(-1, n_state)
     return tendency(E, spec, forcing_at(drivers, spec, [t]), params).ravel()
-
-
-def total_nitrogen(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
-    """Total nitrogen (DIN + algal N) per basin [µg N/L], (..., B)."""
-    layout = StateLayout(spec)
-    return layout.nitrogen(E) + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(E)
-
-
-def total_phosphorus(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
-    """Total phosphorus (SRP + algal P) per basin [µg P/L], (..., B)."""
-    layout = StateLayout(spec)
-    return layout.phosphorus(E) + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(E)
-
-
-def secchi_depth(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
-    """Secchi depth implied by the state, SD ≈ 1.7 / (k_bg + k_chl·ΣA) [m], (..., B).
-
-    Beer–Lambert attenuation with self-shading (:mod:`light`) and the
-    Poole–Atkins rule of thumb; for Carlson's TSI(SD) on the page.
-    """
-    layout = StateLayout(spec)
-    k = light.attenuation_coefficient(spec.background_attenuation_per_m, spec.chlorophyll_attenuation_m2_mg,
-                                      layout.total_chlorophyll(E))
-    return light.secchi_depth(k)
-
-
-def total_mass(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
-    """Total nitrogen and phosphorus in the whole network [kg], (..., 2).
-
-    Changes at the rate ``mass_fluxes(...)["net"]``; N fixation is a source
-    of the nitrogen total (the ``fixation`` term), not a transfer within it.
-    """
-    volume = np.array([b.volume_m3 for b in spec.basins])
-    n = (total_nitrogen(E, spec) * volume).sum(axis=-1)
-    p = (total_phosphorus(E, spec) * volume).sum(axis=-1)
-    return np.stack([n, p], axis=-1) * KG_PER_MG
-
-
-def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict | None = None) -> dict:
-    """Mass fluxes of the network budget [kg/d], each (M, 2) for (N, P).
-
-    Keys: ``inflow`` (external loads), ``outflow`` (leaving the system),
-    ``settling``, ``mortality_loss`` (the non-recycled part),
-    ``denitrification`` (N only), ``fixation`` (N only, N2 fixed by
-    nitrogen-fixing groups), ``sediment_release`` (P only) and ``net`` =
-    inflow − outflow − settling − mortality_loss − denitrification +
-    fixation + sediment_release, which equals d(total_mass)/dt. forcing at
-    one time.
-    """
-    layout = StateLayout(spec)
-    E = np.asarray(E, dtype=float)
-    _check_temperature_members(forcing, E.shape[0])
-    C = layout.blocks(E)
-    co = coefficients(spec, params, E.shape[0])
-    T, par = forcing.water_temperature_C[0], forcing.par_W_m2[0]
-    q, c_in = forcing.inflow_m3_s[0], forcing.inflow_concentration_ugL[0]
-    stoich = np.array([co.n_to_chl, co.p_to_chl])
-    A = C[..., 2:]
-    mu, m, s, share = _rates(C, co, T, par)
-
-    def totals(conc_nutrient, chlorophyll_sum):
-        return conc_nutrient + stoich * chlorophyll_sum[..., None]
-
-    spd = hydraulics.SECONDS_PER_DAY
-    inflow_tot = totals(c_in[:, :2], c_in[:, 2:].sum(axis=-1))               # (I, 2) µg/L
-    inflow = np.broadcast_to((q[:, None] * inflow_tot).sum(axis=0) * spd, (E.shape[0], 2))
-    Q = hydraulics.basin_outflows(spec.network, q) * spd                     # (B,) m³/d
-    leaves = np.array([d == -1 for d in spec.network.downstream], dtype=float)
-    basin_tot = totals(C[..., :2], A.sum(axis=-1))                            # (M, B, 2)
-    outflow = ((Q * leaves)[:, None] * basin_tot).sum(axis=-2)
-    V = co.volume_m3[:, None]
-    settling = stoich * ((s * A).sum(axis=-1)[..., None] * V).sum(axis=-2)
-    mortality_loss = stoich * (1.0 - co.recycled) * ((m * A).sum(axis=-1)[..., None] * V).sum(axis=-2)
-    release = np.zeros((E.shape[0], 2))
-    if co.sediment_release_20 > 0:
-        j = kinetics.sediment_phosphorus_release(co.sediment_release_20, co.theta_sediment, T, co.depth_m)
-        release[:, 1] = (j * co.volume_m3).sum(axis=-1)
-    denitrification = np.zeros((E.shape[0], 2))
-    if co.denitrification_20 > 0:
-        k_dn = kinetics.denitrification_rate(co.denitrification_20, co.theta_denitrification, T)
-        denitrification[:, 0] = (k_dn * C[..., 0] * co.volume_m3).sum(axis=-1)
-    fixation = np.zeros((E.shape[0], 2))
-    if co.any_fixing:
-        fixation[:, 0] = co.n_to_chl * (((1.0 - share) * mu * A).sum(axis=-1) * co.volume_m3).sum(axis=-1)
-    out = {"inflow": inflow, "outflow": outflow, "settling": settling, "mortality_loss": mortality_loss,
-           "denitrification": denitrification, "fixation": fixation, "sediment_release": release}
-    out = {k: np.asarray(v) * KG_PER_MG for k, v in out.items()}
-    out["net"] = (out["inflow"] - out["outflow"] - out["settling"] - out["mortality_loss"]
-                  - out["denitrification"] + out["fixation"] + out["sediment_release"])
-    return out

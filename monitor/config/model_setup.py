@@ -17,7 +17,7 @@ from pathlib import Path
 from types import NoneType
 from typing import Any
 
-from assimilation import filter as enkf_filter
+from assimilation.filter_config import FilterConfig
 from assimilation.parameters import default_spec
 from assimilation.spec import Basin, ModelSpec, Network
 from monitor.config.errors import ConfigError
@@ -54,18 +54,18 @@ def chlorophyll_sensors(config: Config, wb: WaterBodyConfig) -> tuple[str, ...]:
     return tuple(s.id for s in config.stations_of(wb.id, variable="chlorophyll_fluorescence"))
 
 
-def filter_config(config: Config, wb: WaterBodyConfig) -> enkf_filter.FilterConfig:
+def filter_config(config: Config, wb: WaterBodyConfig) -> FilterConfig:
     """The filter settings of a water body: ``[filter]`` plus one estimated gain per chlorophyll sensor."""
-    return enkf_filter.FilterConfig(members=config.filter.members, method=config.filter.method,
+    return FilterConfig(members=config.filter.members, method=config.filter.method,
                                     n_sensors=len(chlorophyll_sensors(config, wb)),
                                     window_d=config.filter.window_days, **dict(config.filter.options))
 
 
 def filter_option_kinds() -> dict[str, tuple[type, ...]]:
     """The options ``[filter]`` may pass to FilterConfig, each with the TOML types it accepts."""
-    hints = typing.get_type_hints(enkf_filter.FilterConfig)
+    hints = typing.get_type_hints(FilterConfig)
     out = {}
-    for f in dataclasses.fields(enkf_filter.FilterConfig):
+    for f in dataclasses.fields(FilterConfig):
         if f.init and f.name not in SETTINGS_FIELDS and f.name not in DERIVED_FIELDS:
             hint = hints[f.name]
             out[f.name] = tuple(k for k in (typing.get_args(hint) or (hint,)) if k is not NoneType)
@@ -113,7 +113,7 @@ def check_filter_config(config: Config, path: Path | None) -> None:
     given.update(settings.options)
     keys.update({name: f"filter.{name}" for name in settings.options})
     for field, value in given.items():
-        _try(path, keys[field], enkf_filter.FilterConfig, **{field: value})
+        _try(path, keys[field], FilterConfig, **{field: value})
     for wb in config.water_bodies:
         _try(path, "filter", filter_config, config, wb)
 

@@ -4,7 +4,7 @@
    checkpoint, QC-passed observations since it, observed and forecast
    drivers) into a picklable :class:`CycleInputs`.
 2. :func:`compute` is a pure function of those inputs: ensemble Kalman
-   filter analysis (``assimilation.filter``), ensemble forecast to the
+   filter analysis (``assimilation.filter_cycle``), ensemble forecast to the
    horizon (``assimilation.integrate``) and daily statistics
    (``assimilation.forecast``). It runs in-process or on a Dask worker.
 3. :func:`record` stores the checkpoint and the forecast run and evaluates
@@ -22,9 +22,11 @@ import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
-from assimilation import filter as enkf_filter
-from assimilation import integrate
+from assimilation import filter_cycle, integrate
+from assimilation.augmentation import split
 from assimilation.checkpoint import Checkpoint
+from assimilation.filter_config import FilterConfig
+from assimilation.first_guess import DEFAULT_FIRST_GUESS
 from assimilation.forecast import QUANTILES, daily_statistics
 from assimilation.observe import OBSERVABLE_KINDS, Observations
 from assimilation.spec import Drivers, ModelSpec, StateLayout
@@ -41,10 +43,6 @@ from monitor.timeutil import from_epoch_days, to_epoch_days
 #: for driver ensembles).
 DRIVER_SCENARIOS_C = (-1.5, 0.0, 1.5)
 
-#: First guess when a basin has no recent sample [µg/L] (mid-range for a
-#: mesotrophic lake; common practice).
-FIRST_GUESS = {"nitrogen": 300.0, "phosphorus": 8.0, "other_chlorophyll": 2.0, "cyanobacteria": 0.3}
-
 QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll", "nitrogen", "phosphorus")
 
 
@@ -57,7 +55,7 @@ class CycleInputs:
     water_body_id: str
     analysis_d: float
     spec: ModelSpec
-    filter: enkf_filter.FilterConfig
+    filter: FilterConfig
     checkpoint: bytes | None
     start_d: float
     initial_state: np.ndarray | None
@@ -115,10 +113,10 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
     frame = observations_frame(station_readings(engine, config, wb, at - dt.timedelta(days=14),
                                                 at + dt.timedelta(days=2)), config, wb, at - dt.timedelta(days=14))
     basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations_of(wb.id) if s.basin}
-    N = np.full(B, FIRST_GUESS["nitrogen"])
-    P = np.full(B, FIRST_GUESS["phosphorus"])
-    total = np.full(B, FIRST_GUESS["other_chlorophyll"] + FIRST_GUESS["cyanobacteria"])
-    cy = np.full(B, FIRST_GUESS["cyanobacteria"])
+    N = np.full(B, DEFAULT_FIRST_GUESS.nitrogen_ugL)
+    P = np.full(B, DEFAULT_FIRST_GUESS.phosphorus_ugL)
+    total = np.full(B, DEFAULT_FIRST_GUESS.other_chlorophyll_ugL + DEFAULT_FIRST_GUESS.cyanobacteria_chlorophyll_ugL)
+    cy = np.full(B, DEFAULT_FIRST_GUESS.cyanobacteria_chlorophyll_ugL)
     if not frame.empty:
         frame = frame.assign(basin=frame.station_id.map(basin_of))
         med = frame.groupby(["basin", "variable"]).value.median()
@@ -195,18 +193,18 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
     spec, cfg = inputs.spec, inputs.filter
     if inputs.checkpoint is None:
         rng = np.random.default_rng(inputs.seed)
-        ckpt = enkf_filter.initial_checkpoint(spec, cfg, inputs.start_d, rng, initial_state=inputs.initial_state)
+        ckpt = filter_cycle.initial_checkpoint(spec, cfg, inputs.start_d, rng, initial_state=inputs.initial_state)
     else:
         ckpt = Checkpoint.from_bytes(inputs.checkpoint)
     try:
-        result = enkf_filter.assimilate(ckpt, inputs.observations, spec, inputs.drivers, cfg, inputs.analysis_d)
+        result = filter_cycle.assimilate(ckpt, inputs.observations, spec, inputs.drivers, cfg, inputs.analysis_d)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
         return CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed", f"analysis failed: {exc}",
                             None, {}, {}, inputs.basin_ids)
     if result.status == "failed":
         return CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed", result.message, None,
                             _jsonable(result.diagnostics), {}, inputs.basin_ids)
-    states, params, _gains = enkf_filter.split(result.checkpoint, spec)
+    states, params, _gains = split(result.checkpoint, spec)
     forecasts = _forecast(states, params, spec, inputs)
     return CycleOutputs(inputs.water_body_id, inputs.analysis_d, result.status, result.message,
                         result.checkpoint.to_bytes(), _jsonable(result.diagnostics), forecasts, inputs.basin_ids)

@@ -2,8 +2,9 @@
 import numpy as np
 import pytest
 
-from assimilation import filter as bf
 from assimilation.checkpoint import Checkpoint
+from assimilation.filter_config import FilterConfig
+from assimilation.filter_cycle import assimilate, initial_checkpoint
 
 from filter_twin import FIRST_GUESS, T0_D, make_twin
 
@@ -37,14 +38,14 @@ def test_checkpoint_rejects_truncated_bytes():
 @pytest.mark.parametrize("method", ["stochastic", "sqrt"])
 def test_resumed_run_equals_uninterrupted_run(method):
     twin = make_twin(6, seed=9)
-    cfg = bf.FilterConfig(members=12, method=method, n_sensors=2, model_error_log_sd_per_d=0.05)
-    start = bf.initial_checkpoint(twin.spec, cfg, T0_D, np.random.default_rng(3), initial_state=FIRST_GUESS)
+    cfg = FilterConfig(members=12, method=method, n_sensors=2, model_error_log_sd_per_d=0.05)
+    start = initial_checkpoint(twin.spec, cfg, T0_D, np.random.default_rng(3), initial_state=FIRST_GUESS)
 
     def cycles(ckpt, days, through_bytes):
         for day in days:
             if through_bytes:
                 ckpt = Checkpoint.from_bytes(ckpt.to_bytes())
-            ckpt = bf.assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + day).checkpoint
+            ckpt = assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + day).checkpoint
         return ckpt
 
     straight = cycles(start, range(1, 7), through_bytes=False)

@@ -1,6 +1,6 @@
 """Both analysis forms on the standard Lorenz-96 filter benchmark.
 
-Setting (Sakov and Oke 2008, Tellus A 60:361; see /work/shared/REFERENCES.md):
+Setting (Sakov and Oke 2008, Tellus A 60:361):
 40 variables, F = 8, RK4 with dt = 0.05, every variable observed every step
 with unit error variance, no model noise; score = time-mean RMSE of the
 analysis mean after spin-up. Published scores (Sakov and Oke 2008, Table 1,
@@ -14,7 +14,9 @@ multiplicative inflation, a well-tuned filter must be below 0.30
 import numpy as np
 import pytest
 
-from assimilation import enkf, inflation, localization, lorenz96
+from assimilation import enkf, inflation, localization
+
+import lorenz96
 
 N_VARIABLES = 40
 MEMBERS = 20

@@ -11,7 +11,9 @@ that a window mean averages down).
 import numpy as np
 import pytest
 
-from assimilation import filter as bf
+from assimilation.augmentation import split
+from assimilation.filter_config import FilterConfig
+from assimilation.filter_cycle import assimilate, initial_checkpoint
 from assimilation.spec import StateLayout
 
 from filter_twin import CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TWIN_SETTINGS, make_twin
@@ -25,15 +27,15 @@ CONFIG = dict(TWIN_SETTINGS, n_sensors=2, representativeness_fraction=0.0)
 def _run(seed, method="sqrt"):
     twin = make_twin(DAYS, seed)
     layout = StateLayout(twin.spec)
-    cfg = bf.FilterConfig(method=method, **CONFIG)
-    ckpt = bf.initial_checkpoint(twin.spec, cfg, T0_D, np.random.default_rng(seed + 100), initial_state=FIRST_GUESS)
+    cfg = FilterConfig(method=method, **CONFIG)
+    ckpt = initial_checkpoint(twin.spec, cfg, T0_D, np.random.default_rng(seed + 100), initial_state=FIRST_GUESS)
     err, spread, statuses = [], [], []
-    mu = [bf.split(ckpt, twin.spec)[1]["mu_max_20_per_d"][:, CYANO].mean()]  # mu[d]: after d days
+    mu = [split(ckpt, twin.spec)[1]["mu_max_20_per_d"][:, CYANO].mean()]  # mu[d]: after d days
     for day in range(1, DAYS + 1):
-        result = bf.assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + day)
+        result = assimilate(ckpt, twin.observations, twin.spec, twin.drivers, cfg, T0_D + day)
         statuses.append(result.status)
         ckpt = result.checkpoint
-        states, params, _ = bf.split(ckpt, twin.spec)
+        states, params, _ = split(ckpt, twin.spec)
         chl = layout.total_chlorophyll(states)  # (M, B)
         truth = layout.total_chlorophyll(twin.truth[day * 24 - 1])
         err.append(chl.mean(axis=0) - truth)

@@ -2,7 +2,7 @@
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from assimilation import lorenz96
+import lorenz96
 
 
 def test_uniform_state_at_the_forcing_is_a_fixed_point():

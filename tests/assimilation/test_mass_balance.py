@@ -8,7 +8,8 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from assimilation import integrate, model
+from assimilation import budget, integrate, model
+from assimilation.forcing import forcing_at
 from assimilation.parameters import default_spec
 from assimilation.spec import Basin, Drivers, Network, StateLayout
 from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
@@ -40,7 +41,7 @@ def test_closed_network_without_sinks_conserves_total_nitrogen_and_phosphorus_to
     E = initial_ensemble(spec, 20)
     X = integrate.simulate(E, spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + np.arange(0, 31.0),
                            params=member_params(spec, 20))
-    mass = model.total_mass(X, spec)                           # (S, M, 2)
+    mass = budget.total_mass(X, spec)                           # (S, M, 2)
     np.testing.assert_allclose(mass, np.broadcast_to(mass[0], mass.shape), rtol=1e-12, atol=0)
     # and the state did change a lot, so conservation is not trivial
     assert np.max(np.abs(X[-1] - X[0])) > 10.0
@@ -54,7 +55,7 @@ def test_conservation_holds_for_huge_steps_and_stiff_growth():
     E = initial_ensemble(spec, 10)
     X = integrate.simulate(E, spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + np.arange(0, 31.0), dt_d=0.5)
     assert np.all(X >= 0)
-    mass = model.total_mass(X, spec)
+    mass = budget.total_mass(X, spec)
     np.testing.assert_allclose(mass, np.broadcast_to(mass[0], mass.shape), rtol=1e-12, atol=0)
 
 
@@ -66,13 +67,13 @@ def test_closed_network_loses_exactly_what_settles_is_not_recycled_or_denitrifie
     X = integrate.simulate(E, spec, drivers, JUNE_FIRST_2026, times, dt_d=1 / 24)
     sinks = np.array([_fluxes(X[k], spec, drivers, t) for k, t in enumerate(times)])  # (S, M, 2) kg/d
     expected = -np.trapezoid(sinks, times, axis=0)
-    change = model.total_mass(X[-1], spec) - model.total_mass(X[0], spec)
+    change = budget.total_mass(X[-1], spec) - budget.total_mass(X[0], spec)
     assert np.all(change < 0)
     np.testing.assert_allclose(change, expected, rtol=5e-5)
 
 
 def _fluxes(E, spec, drivers, t):
-    f = model.mass_fluxes(E, spec, model.forcing_at(drivers, spec, [t]))
+    f = budget.mass_fluxes(E, spec, forcing_at(drivers, spec, [t]))
     return (f["settling"] + f["mortality_loss"] + f["denitrification"] - f["fixation"] - f["sediment_release"]
             - f["inflow"] + f["outflow"])
 
@@ -94,14 +95,14 @@ def test_closed_network_nitrogen_changes_by_fixation_minus_denitrification():
     spec, drivers, E = nitrogen_poor_closed_case(20)
     times = JUNE_FIRST_2026 + np.arange(0, 20 + 1e-9, 1 / 96)
     X = integrate.simulate(E, spec, drivers, JUNE_FIRST_2026, times, dt_d=1 / 96)
-    f = [model.mass_fluxes(X[k], spec, model.forcing_at(drivers, spec, [t])) for k, t in enumerate(times)]
+    f = [budget.mass_fluxes(X[k], spec, forcing_at(drivers, spec, [t])) for k, t in enumerate(times)]
     fixation = np.trapezoid([x["fixation"][:, 0] for x in f], times, axis=0)
     denitrification = np.trapezoid([x["denitrification"][:, 0] for x in f], times, axis=0)
-    change = model.total_mass(X[-1], spec) - model.total_mass(X[0], spec)
+    change = budget.total_mass(X[-1], spec) - budget.total_mass(X[0], spec)
     # fixation is the larger term here, so the check sees it (a budget without it is off by > 100 %)
     assert np.all(fixation > 1.5 * denitrification)
     np.testing.assert_allclose(change[:, 0], fixation - denitrification, rtol=5e-3)
-    np.testing.assert_allclose(change[:, 1], 0.0, atol=1e-10 * model.total_mass(X[0], spec)[:, 1].max())
+    np.testing.assert_allclose(change[:, 1], 0.0, atol=1e-10 * budget.total_mass(X[0], spec)[:, 1].max())
 
 
 def test_fixation_keeps_concentrations_positive_and_phosphorus_conserved_for_huge_steps():
@@ -112,7 +113,7 @@ def test_fixation_keeps_concentrations_positive_and_phosphorus_conserved_for_hug
                    groups=tuple(replace(g, mu_max_20_per_d=20.0) for g in spec.groups))
     X = integrate.simulate(E, spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + np.arange(0, 31.0), dt_d=0.5)
     assert np.all(X >= 0)
-    mass = model.total_mass(X, spec)
+    mass = budget.total_mass(X, spec)
     np.testing.assert_allclose(mass[..., 1], np.broadcast_to(mass[0, :, 1], mass.shape[:2]), rtol=1e-12, atol=0)
     assert np.all(np.diff(mass[..., 0], axis=0) >= -1e-12 * mass[0, :, 0])
     assert np.all(mass[-1, :, 0] > 1.5 * mass[0, :, 0])
@@ -127,10 +128,10 @@ def test_open_network_change_in_mass_equals_inflow_minus_outflow_minus_losses():
     times = JUNE_FIRST_2026 + np.arange(0, 30 + 1e-9, 1 / 24)
     X = integrate.simulate(E, spec, drivers, JUNE_FIRST_2026, times)
     net_loss = np.array([_fluxes(X[k], spec, drivers, t) for k, t in enumerate(times)])
-    change = model.total_mass(X[-1], spec) - model.total_mass(X[0], spec)
+    change = budget.total_mass(X[-1], spec) - budget.total_mass(X[0], spec)
     expected = -np.trapezoid(net_loss, times, axis=0)
     # compare against the throughput (the inflow load), which dwarfs round-off and time-quadrature error
-    inflow = np.trapezoid([model.mass_fluxes(X[k], spec, model.forcing_at(drivers, spec, [t]))["inflow"]
+    inflow = np.trapezoid([budget.mass_fluxes(X[k], spec, forcing_at(drivers, spec, [t]))["inflow"]
                            for k, t in enumerate(times)], times, axis=0)
     assert np.max(np.abs(change - expected) / inflow) < 2e-4
 
@@ -144,13 +145,13 @@ def test_mass_fluxes_net_equals_rate_of_change_of_total_mass_from_the_tendency()
     layout = StateLayout(spec)
     E = rng.uniform(0.1, 200.0, (6, layout.n_state))
     params = member_params(spec, 6)
-    forcing = model.forcing_at(drivers, spec, [JUNE_FIRST_2026 + 1.5])
+    forcing = forcing_at(drivers, spec, [JUNE_FIRST_2026 + 1.5])
     dE = model.tendency(E, spec, forcing, params)
     volume = np.array([b.volume_m3 for b in spec.basins])
     dn = ((layout.nitrogen(dE) + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
     dp = ((layout.phosphorus(dE) + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
     rate = np.stack([dn, dp], -1) * 1e-6
-    net = model.mass_fluxes(E, spec, forcing, params)["net"]
+    net = budget.mass_fluxes(E, spec, forcing, params)["net"]
     np.testing.assert_allclose(rate, net, rtol=1e-10, atol=1e-12 * np.abs(net).max())
 
 

@@ -4,7 +4,8 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from assimilation import integrate, model
+from assimilation import budget, integrate, model
+from assimilation.forcing import forcing_at
 from assimilation.parameters import default_groups, default_spec
 from assimilation.spec import Basin, Drivers, Network, StateLayout
 from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
@@ -135,7 +136,7 @@ def test_total_phosphorus_adds_algal_phosphorus_by_stoichiometry():
     spec = three_basin_spec()
     layout = StateLayout(spec)
     E = layout.pack(np.full((1, 3), 100.0), np.full((1, 3), 10.0), np.full((1, 3, 2), 5.0))
-    np.testing.assert_allclose(model.total_phosphorus(E, spec), 10.0 + 10.0 * spec.phosphorus_to_chlorophyll)
+    np.testing.assert_allclose(budget.total_phosphorus(E, spec), 10.0 + 10.0 * spec.phosphorus_to_chlorophyll)
     # Redfield by mass 41:7.2:1 (Redfield 1958) with carbon:chlorophyll 50 → 8.78 µg N and 1.22 µg P per µg chl-a
     assert spec.nitrogen_to_chlorophyll == pytest.approx(50 * 7.2 / 41)
     assert spec.phosphorus_to_chlorophyll == pytest.approx(50 / 41)
@@ -185,16 +186,16 @@ def test_member_temperatures_keep_the_mass_budget_identity():
     rng = np.random.default_rng(5)
     layout = StateLayout(spec)
     E = rng.uniform(0.1, 200.0, (6, layout.n_state))
-    forcing = model.forcing_at(drivers, spec, [JUNE_FIRST_2026 + 1.5])
+    forcing = forcing_at(drivers, spec, [JUNE_FIRST_2026 + 1.5])
     assert forcing.water_temperature_C.shape == (1, 6, 3)
     dE = model.tendency(E, spec, forcing)
     volume = np.array([b.volume_m3 for b in spec.basins])
     dn = ((layout.nitrogen(dE) + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
     dp = ((layout.phosphorus(dE) + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
-    net = model.mass_fluxes(E, spec, forcing)["net"]
+    net = budget.mass_fluxes(E, spec, forcing)["net"]
     np.testing.assert_allclose(np.stack([dn, dp], -1) * 1e-6, net, rtol=1e-10, atol=1e-12 * np.abs(net).max())
     # warmer members release more sediment phosphorus
-    release = model.mass_fluxes(E, spec, forcing)["sediment_release"][:, 1]
+    release = budget.mass_fluxes(E, spec, forcing)["sediment_release"][:, 1]
     assert release[2] > release[0] > release[4]
 
 
@@ -204,7 +205,7 @@ def test_advance_rejects_member_temperatures_for_another_ensemble_size():
     with pytest.raises(ValueError, match="one series for each of 4 members .* ensemble has 3 members"):
         integrate.advance(initial_ensemble(spec, 3), spec, drivers, JUNE_FIRST_2026, JUNE_FIRST_2026 + 1.0)
     with pytest.raises(ValueError, match="one series for each of 4 members .* ensemble has 3 members"):
-        model.tendency(initial_ensemble(spec, 3), spec, model.forcing_at(drivers, spec, [JUNE_FIRST_2026]))
+        model.tendency(initial_ensemble(spec, 3), spec, forcing_at(drivers, spec, [JUNE_FIRST_2026]))
 
 
 def test_drivers_reject_water_temperature_of_four_dimensions():

@@ -25,7 +25,8 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from assimilation import integrate, model
+from assimilation import budget, integrate, model
+from assimilation.forcing import forcing_at
 from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 
 FLOOR_UGL = 0.1
@@ -97,7 +98,7 @@ def test_hourly_integrator_with_nitrogen_fixers_matches_solve_ivp_within_stated_
     # fixation really happened: total N of the fixers' run exceeds that of the same run without it
     plain = without_fixation(spec)
     Y = integrate.simulate(E, plain, drivers, save[0], save, dt_d=1 / 24, params=params)
-    assert np.all(model.total_mass(reference[-1], spec)[:, 0] > 1.05 * model.total_mass(Y[-1], plain)[:, 0])
+    assert np.all(budget.total_mass(reference[-1], spec)[:, 0] > 1.05 * budget.total_mass(Y[-1], plain)[:, 0])
 
 
 @pytest.mark.slow
@@ -110,7 +111,7 @@ def test_integrator_with_nitrogen_fixers_converges_at_second_order_below_half_ho
 
 def test_tendency_is_vectorised_over_members(small_case):
     spec, drivers, E, params = small_case
-    forcing = model.forcing_at(drivers, spec, [JUNE_FIRST_2026 + 3.5])
+    forcing = forcing_at(drivers, spec, [JUNE_FIRST_2026 + 3.5])
     together = model.tendency(E, spec, forcing, params)
     one_by_one = np.vstack([model.tendency(E[m:m + 1], spec, forcing, {k: v[m:m + 1] for k, v in params.items()})
                             for m in range(E.shape[0])])

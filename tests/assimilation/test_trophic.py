@@ -49,19 +49,19 @@ def test_tsi_rejects_non_positive_values():
 
 
 def test_model_secchi_depth_and_total_phosphorus_feed_carlson_indices():
-    from assimilation import model
+    from assimilation import budget
     from assimilation.spec import StateLayout
     from model_scenarios import three_basin_spec
 
     spec = three_basin_spec()
     layout = StateLayout(spec)
     E = layout.pack(np.full((1, 3), 200.0), np.full((1, 3), 20.0), np.array([[[10.0, 10.0], [0.0, 0.0], [1.0, 0.0]]]))
-    sd = model.secchi_depth(E, spec)[0]
+    sd = budget.secchi_depth(E, spec)[0]
     # SD = 1.7 / (0.8 + 0.016·20) = 1.518 m (rule of thumb Kd ≈ 1.7/SD, REFERENCES.md)
     assert sd[0] == pytest.approx(1.7 / (0.8 + 0.016 * 20.0))
     assert sd[1] > sd[0]
     # TP = SRP + algal P = 20 + 20·50/41 = 44.4 µg/L → TSI(TP) = 14.42 ln 44.4 + 4.15 = 58.8 (Carlson 1977)
-    tp = model.total_phosphorus(E, spec)[0, 0]
+    tp = budget.total_phosphorus(E, spec)[0, 0]
     assert tp == pytest.approx(20.0 + 20.0 * 50.0 / 41.0)
     assert tsi_total_phosphorus(tp) == pytest.approx(58.8, abs=0.05)
     assert trophic_class(tsi_total_phosphorus(tp)) == "eutrophic"

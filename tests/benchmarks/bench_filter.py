@@ -10,7 +10,7 @@ filters. Both filters estimate the growth and mortality rates of both groups
 by state augmentation in log space, start from the same prior distribution
 and analyse each day's windows at the same time.
 
-Bloomline: :func:`assimilation.filter.assimilate` with its defaults except the
+Bloomline: :func:`assimilation.filter_cycle.assimilate` with its defaults except the
 perfect-model settings of the twin (``TWIN_SETTINGS``: no inflation of the
 model state, as filterpy has none); observation errors are the
 defaults' (representativeness 10 %) for both filters.
@@ -43,8 +43,11 @@ sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "assimilation")
 
 from filterpy.kalman import EnsembleKalmanFilter  # noqa: E402
 
-from assimilation import filter as bf  # noqa: E402
 from assimilation import integrate, observe  # noqa: E402
+from assimilation.augmentation import split  # noqa: E402
+from assimilation.filter_config import FilterConfig  # noqa: E402
+from assimilation.filter_cycle import assimilate, initial_checkpoint  # noqa: E402
+from assimilation.model import PARAMETER_KEYS  # noqa: E402
 from assimilation.spec import StateLayout  # noqa: E402
 from filter_twin import (CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TWIN_SETTINGS,  # noqa: E402
                          truth_run)
@@ -72,24 +75,24 @@ def make_problem(days, seed=1):
 
 
 def run_bloomline(s, drv, obs, days, members, seed):
-    cfg = bf.FilterConfig(members=members, **TWIN_SETTINGS)
-    ckpt = bf.initial_checkpoint(s, cfg, T0_D, np.random.default_rng(seed), initial_state=FIRST_GUESS)
+    cfg = FilterConfig(members=members, **TWIN_SETTINGS)
+    ckpt = initial_checkpoint(s, cfg, T0_D, np.random.default_rng(seed), initial_state=FIRST_GUESS)
     layout = StateLayout(s)
     chl, statuses = [], set()
     for day in range(1, days + 1):
-        result = bf.assimilate(ckpt, obs, s, drv, cfg, T0_D + day)
+        result = assimilate(ckpt, obs, s, drv, cfg, T0_D + day)
         statuses.add(result.status)
         ckpt = result.checkpoint
-        states, params, _ = bf.split(ckpt, s)
+        states, params, _ = split(ckpt, s)
         chl.append(layout.total_chlorophyll(states).mean(axis=0))
     return np.array(chl), float(params["mu_max_20_per_d"][:, CYANO].mean()), sorted(statuses)
 
 
 def run_filterpy(s, drv, obs, days, members, seed):
-    cfg = bf.FilterConfig(members=members)
+    cfg = FilterConfig(members=members)
     layout = StateLayout(s)
     n_state, G = layout.n_state, s.n_groups
-    theta0 = np.array([getattr(g, k) for k in bf.PARAMETER_KEYS for g in s.groups])
+    theta0 = np.array([getattr(g, k) for k in PARAMETER_KEYS for g in s.groups])
     x0 = np.r_[np.log(FIRST_GUESS), np.log(theta0)]
     P0 = np.diag(np.r_[np.full(n_state, cfg.initial_state_log_sd**2), np.full(theta0.size, cfg.parameter_log_sd**2)])
     clock = {"t": T0_D, "to": T0_D}
@@ -98,7 +101,7 @@ def run_filterpy(s, drv, obs, days, members, seed):
 
     def fx(x, dt):
         theta = np.exp(x[n_state:])
-        params = {k: theta[None, i * G:(i + 1) * G] for i, k in enumerate(bf.PARAMETER_KEYS)}
+        params = {k: theta[None, i * G:(i + 1) * G] for i, k in enumerate(PARAMETER_KEYS)}
         state = integrate.advance(np.exp(x[None, :n_state]), s, drv, clock["t"], clock["to"], params=params)
         return np.r_[np.log(np.maximum(state[0], floor)), x[n_state:]]
 

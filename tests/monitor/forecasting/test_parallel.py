@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from assimilation.filter import FilterConfig
+from assimilation.filter_config import FilterConfig
 from assimilation.observe import Observations
 from assimilation.parameters import default_spec
 from assimilation.spec import Basin, Drivers, Network

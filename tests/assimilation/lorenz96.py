@@ -3,8 +3,9 @@
 dX_i/dt = (X_{i+1} - X_{i-2}) X_{i-1} - X_i + F, i periodic
 (Lorenz 1996, Predictability: a problem partly solved, Proc. ECMWF Seminar
 on Predictability, vol. 1, 1–18; Lorenz and Emanuel 1998, J. Atmos. Sci.
-55:399). Used by Bloomline's tests and benchmarks as the standard testbed
-for ensemble filters, with 40 variables, F = 8 and RK4 steps of 0.05.
+55:399). A helper of Bloomline's filter tests (imported like filter_twin.py):
+the standard testbed for ensemble filters, with 40 variables, F = 8 and RK4
+steps of 0.05.
 """
 from __future__ import annotations
 

@@ -1,0 +1,73 @@
+"""Drivers interpolated to the model's times: the forcing of the tendency.
+
+:func:`forcing_at` turns the hourly (or coarser) series of
+:class:`assimilation.spec.Drivers` into a :class:`Forcing` at the times the
+integrator needs, by linear interpolation in time; shortwave radiation
+becomes surface PAR through the spec's ``par_fraction``.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from assimilation.spec import Drivers, ModelSpec
+
+
+@dataclass(frozen=True, eq=False)
+class Forcing:
+    """Drivers at K times: water_temperature_C (K, B) or (K, M, B) [°C], par_W_m2 (K, B)
+    [W/m² PAR at the surface], inflow_m3_s (K, I) [m³/s] and
+    inflow_concentration_ugL (K, I, 2 + G) [µg/L] (N, P, chlorophyll per group)."""
+
+    water_temperature_C: np.ndarray
+    par_W_m2: np.ndarray
+    inflow_m3_s: np.ndarray
+    inflow_concentration_ugL: np.ndarray
+
+
+def check_time_range(drivers: Drivers, t_first: float, t_last: float) -> None:
+    """Raise ValueError unless [t_first, t_last] [epoch days] lies within the driver times."""
+    t = drivers.time_d
+    tol = 1e-9 * max(1.0, abs(t[-1]))
+    if t_first < t[0] - tol or t_last > t[-1] + tol:
+        raise ValueError(f"drivers cover epoch days {t[0]:.6f}..{t[-1]:.6f}, "
+                         f"the model needs {t_first:.6f}..{t_last:.6f}")
+
+
+def check_members(forcing: Forcing, n_members: int) -> None:
+    """Raise ValueError unless a per-member water temperature (K, M, B) has ``n_members`` series."""
+    temperature = forcing.water_temperature_C
+    if temperature.ndim == 3 and temperature.shape[1] != n_members:
+        raise ValueError(f"Drivers.water_temperature_C has one series for each of {temperature.shape[1]} members "
+                         f"(shape (T, M, B)), but the ensemble has {n_members} members")
+
+
+def _interpolate(time_d: np.ndarray, values: np.ndarray, times: np.ndarray) -> np.ndarray:
+    """Linear interpolation of ``values`` (T, ...) at ``time_d`` (T,) to ``times`` (K,), held at the ends."""
+    if time_d.size == 1:
+        return np.broadcast_to(values[:1], (times.size,) + values.shape[1:]).copy()
+    k = np.clip(np.searchsorted(time_d, times, side="right") - 1, 0, time_d.size - 2)
+    w = np.clip((times - time_d[k]) / (time_d[k + 1] - time_d[k]), 0.0, 1.0)
+    w = w.reshape((-1,) + (1,) * (values.ndim - 1))
+    return (1.0 - w) * values[k] + w * values[k + 1]
+
+
+def forcing_at(drivers: Drivers, spec: ModelSpec, times_d) -> Forcing:
+    """Drivers interpolated linearly to ``times_d`` (K,) [epoch days]."""
+    drivers.check_against(spec)
+    times = np.atleast_1d(np.asarray(times_d, dtype=float))
+    check_time_range(drivers, times.min(), times.max())
+    t = drivers.time_d
+    B, I, G = spec.n_basins, spec.n_inflows, spec.n_groups
+    temperature = _interpolate(t, drivers.water_temperature_C, times)
+    shortwave = _interpolate(t, drivers.shortwave_W_m2, times)
+    if shortwave.ndim == 1:
+        shortwave = np.repeat(shortwave[:, None], B, axis=1)
+    inflow = _interpolate(t, drivers.inflow_m3_s, times)
+    conc = np.zeros((times.size, I, 2 + G))
+    conc[..., 0] = _interpolate(t, drivers.inflow_nitrogen_ugL, times)
+    conc[..., 1] = _interpolate(t, drivers.inflow_phosphorus_ugL, times)
+    if drivers.inflow_chlorophyll_ugL is not None:
+        conc[..., 2:] = _interpolate(t, drivers.inflow_chlorophyll_ugL, times)
+    return Forcing(temperature, spec.par_fraction * shortwave, inflow, conc)
