@@ -69,6 +69,8 @@ class BaselineForecast:
     valid_day_d: np.ndarray
     members_ugL: np.ndarray
     note: str = ""
+    params: np.ndarray | None = None
+    """The fitted parameters of a model-based forecaster (for re-use by a later origin)."""
 
 
 def _positions(m: int) -> np.ndarray:
@@ -224,7 +226,7 @@ def _fill_gaps(values):
 
 
 def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, temperature_C=None,
-                 future_temperature_C=None, members: int = MEMBERS,
+                 future_temperature_C=None, members: int = MEMBERS, params=None,
                  min_observations: int = MIN_AR_OBSERVATIONS, floor_ugL: float = LOG_FLOOR_UGL) -> BaselineForecast:
     """AR(1) forecast of log chlorophyll-a, members at fixed normal quantiles [µg/L].
 
@@ -243,6 +245,11 @@ def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, tempera
     from statsmodels are not raised but recorded in ``note``; a fit it
     reports as not converged is kept (its L-BFGS line search can stop
     close to the optimum of this small likelihood), so read the note.
+    ``params``: parameters fitted at an earlier origin (``.params`` of its
+    result); the series is then only filtered with them, not refitted (a
+    hindcast refits weekly: the parameters still come only from data before
+    the origin). Parameters of the other model form (with or without the
+    regressor) are ignored and the model is fitted.
     """
     grid, temp, valid = _history(days_d, chl_ugL, origin_d, horizon_days, extra=temperature_C)
     _check_members(members)
@@ -269,7 +276,10 @@ def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, tempera
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            result = SARIMAX(z, exog=exog, order=(1, 0, 0), trend="c").fit(disp=False)
+            model = SARIMAX(z, exog=exog, order=(1, 0, 0), trend="c")
+            if params is not None and np.size(params) != len(model.param_names):
+                params = None  # fitted with or without the regressor: not this model's parameters
+            result = model.fit(disp=False) if params is None else model.filter(np.asarray(params, dtype=float))
             prediction = result.get_forecast(valid.size, exog=None if exog is None else future[:, None])
             mean = np.asarray(prediction.predicted_mean, dtype=float)
             sd = np.sqrt(np.asarray(prediction.var_pred_mean, dtype=float))
@@ -279,7 +289,7 @@ def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, tempera
         return fallback("the autoregression gave a non-finite forecast")
     notes += [f"statsmodels: {w.message}" for w in caught]
     out = transform.from_log(mean + sd * stats.norm.ppf(_positions(members))[:, None])
-    return BaselineForecast("ar1", valid, out, "; ".join(notes))
+    return BaselineForecast("ar1", valid, out, "; ".join(notes), np.asarray(result.params, dtype=float))
 
 
 def _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL):

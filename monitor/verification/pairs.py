@@ -87,9 +87,18 @@ def _on_grid(days_d: np.ndarray, values: np.ndarray, grid_d: np.ndarray) -> np.n
     return out
 
 
+#: The statistical baseline's parameters are refitted at most this often [d]; between
+#: refits the series up to the origin is filtered with the last fit (data before it only).
+REFIT_EVERY_DAYS = 7
+
+
 def baseline_members(days_d: np.ndarray, values: np.ndarray, temp_days_d: np.ndarray, temp: np.ndarray,
-                     origin_d: float, horizon: int) -> dict[str, np.ndarray | None]:
-    """Each baseline's members (M, H) [µg/L] from the observed days at or before ``origin_d``."""
+                     origin_d: float, horizon: int, fits: dict | None = None) -> dict[str, np.ndarray | None]:
+    """Each baseline's members (M, H) [µg/L] from the observed days at or before ``origin_d``.
+
+    ``fits`` (a dict the caller keeps per series) holds the statistical
+    model's last fit: ``{"origin_d": …, "params": …}``.
+    """
     before = days_d <= origin_d + 1e-9
     if not np.any(np.isfinite(values[before])):
         return dict.fromkeys(BASELINES)
@@ -99,11 +108,16 @@ def baseline_members(days_d: np.ndarray, values: np.ndarray, temp_days_d: np.nda
     if t is not None and not np.any(np.isfinite(t)):
         t = None
     clim = baselines.climatology(grid, chl, origin_d, horizon).members_ugL
+    fits = {} if fits is None else fits
+    reuse = fits.get("params") if origin_d - fits.get("origin_d", -np.inf) < REFIT_EVERY_DAYS else None
+    statistical = baselines.ar1_forecast(grid, chl, origin_d, horizon, temperature_C=t, params=reuse)
+    if reuse is None and statistical.params is not None:
+        fits.update(origin_d=origin_d, params=statistical.params)
     return {
         "persistence": baselines.persistence(grid, chl, origin_d, horizon).members_ugL,
         "persistence_ensemble": baselines.persistence_ensemble(grid, chl, origin_d, horizon).members_ugL,
         "climatology": None if np.all(np.isnan(clim)) else clim,
-        "statistical": baselines.ar1_forecast(grid, chl, origin_d, horizon, temperature_C=t).members_ugL,
+        "statistical": statistical.members_ugL,
     }
 
 
@@ -117,6 +131,7 @@ def water_body_pairs(engine: Engine, water_body_id: str, observed: pd.DataFrame,
     outlooks: list[tuple] = []
     out: dict[str, list] = {f: [] for f in FORECASTERS}
     basins = sorted(set(observed.basin_id)) if len(observed) else []
+    fits: dict[tuple[str, str], dict] = {}
     for run_id, origin in zip(runs.id, runs.analysis_utc):
         origin_d = float(to_epoch_days(origin))
         for basin in basins:
@@ -126,7 +141,8 @@ def water_body_pairs(engine: Engine, water_body_id: str, observed: pd.DataFrame,
                 ens = members.get((run_id, basin, quantity))
                 if ens is None or days_d.size == 0:
                     continue
-                base = baseline_members(days_d, values, temp_days, temp, origin_d, horizon)
+                base = baseline_members(days_d, values, temp_days, temp, origin_d, horizon,
+                                        fits.setdefault((basin, quantity), {}))
                 for name, m in base.items():
                     for lv, thr in enumerate(thresholds, start=1):
                         if m is not None:

@@ -73,10 +73,31 @@ def _copy(source: Engine, target: Engine, table, where=None) -> int:
     return n
 
 
+def _attach_copy(live: Engine, scratch: Engine, stations: list[str]) -> None:
+    """SQLite to SQLite: copy inside the scratch database with the live one attached (no row
+    goes through Python)."""
+    marks = ", ".join("?" * len(stations))
+    with scratch.connect() as conn:
+        raw = conn.connection.dbapi_connection
+        raw.execute("ATTACH DATABASE ? AS live", (live.url.database,))
+        try:
+            with raw:
+                raw.execute("INSERT INTO ingest_batches SELECT * FROM live.ingest_batches")
+                for table in ("readings", "driver_forecasts"):
+                    cols = ", ".join(c.name for c in schema.metadata.tables[table].columns)
+                    raw.execute(f"INSERT INTO {table} ({cols}) SELECT {cols} FROM live.{table} "
+                                f"WHERE station_id IN ({marks})", stations)
+        finally:
+            raw.execute("DETACH DATABASE live")
+
+
 def scratch_copy(live: Engine, config: Config, bodies: list[WaterBodyConfig], folder: Path) -> Engine:
     """A fresh SQLite store in ``folder`` holding the live store's readings of ``bodies``."""
     scratch = open_store(f"sqlite:///{folder / 'replay.sqlite'}")
     stations = replay_stations(config, bodies)
+    if live.dialect.name == "sqlite" and live.url.database not in (None, "", ":memory:"):
+        _attach_copy(live, scratch, stations)
+        return scratch
     r, f = schema.readings, schema.driver_forecasts
     _copy(live, scratch, schema.ingest_batches)
     _copy(live, scratch, r, r.c.station_id.in_(stations))

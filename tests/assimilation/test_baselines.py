@@ -181,3 +181,20 @@ def test_baselines_reject_bad_input():
         bl.ar1_forecast(days, chl, days[100], 3, future_temperature_C=np.ones(3))
     with pytest.raises(ValueError, match="future_temperature_C must be finite with shape"):
         bl.ar1_forecast(days, chl, days[100], 3, temperature_C=temp, future_temperature_C=np.ones(2))
+
+
+def test_ar1_with_earlier_parameters_filters_the_new_series_as_statsmodels_does():
+    # statsmodels' own SARIMAX.filter with the given parameters is the reference
+    rng = np.random.default_rng(11)
+    days = np.arange(19500.0, 19580.0)
+    z = np.empty(days.size)
+    z[0] = 1.0
+    for k in range(1, days.size):
+        z[k] = 0.3 + 0.7 * z[k - 1] + rng.normal(0, 0.2)
+    chl = np.exp(z)
+    earlier = bl.ar1_forecast(days[:60], chl[:60], days[59], 5)
+    later = bl.ar1_forecast(days, chl, days[-1], 5, params=earlier.params)
+    direct = SARIMAX(np.log(chl), order=(1, 0, 0), trend="c").filter(earlier.params).get_forecast(5)
+    # members sit at symmetric normal quantiles of the log forecast, so their log mean is its mean
+    assert np.allclose(np.log(later.members_ugL).mean(axis=0), direct.predicted_mean, atol=1e-8)
+    assert np.array_equal(later.params, earlier.params)
