@@ -33,6 +33,8 @@ from assimilation.spec import Drivers, ModelSpec, StateLayout
 from monitor.alerting import rules as alerts
 from monitor.store import runs as store
 from monitor.config import Config, WaterBodyConfig
+from monitor.forecasting.baselines import baseline_members
+from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history
 from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.store.readings import latest_driver_forecast, readings_frame
@@ -67,6 +69,7 @@ class CycleInputs:
     thresholds_ugL: tuple[float, ...]
     window_days: float = 1.0
     basin_ids: tuple[str, ...] = ()
+    history: ObservedHistory = field(default_factory=ObservedHistory)
 
 
 def station_readings(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
@@ -169,7 +172,8 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         observations=to_observations(observations_frame(frame, config, wb, start), config, wb),
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
-        window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins))
+        window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
+        history=observed_history(engine, config, wb, analysis))
 
 
 # --------------------------------------------------------------------------
@@ -186,6 +190,10 @@ class CycleOutputs:
     diagnostics: dict = field(default_factory=dict)
     forecasts: dict = field(default_factory=dict)  # quantity -> assimilation.forecast.DailyForecast
     basin_ids: tuple[str, ...] = ()
+    #: (basin, quantity, forecaster, observed variable, members (days, M)) of the baselines
+    baselines: list = field(default_factory=list)
+    #: (basin, quantity) -> the observed variable that verifies it
+    verified_by: dict = field(default_factory=dict)
 
 
 def compute(inputs: CycleInputs) -> CycleOutputs:
@@ -206,8 +214,13 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
                             _jsonable(result.diagnostics), {}, inputs.basin_ids)
     states, params, _gains = split(result.checkpoint, spec)
     forecasts = _forecast(states, params, spec, inputs)
+    verified_by = {(b, q): s.variable for b in inputs.basin_ids for q in OBSERVED_BY
+                   if (s := inputs.history.get(b, q)) is not None}
+    issued_baselines = list(baseline_members(inputs.history, inputs.basin_ids, inputs.analysis_d,
+                                             inputs.horizon_days))
     return CycleOutputs(inputs.water_body_id, inputs.analysis_d, result.status, result.message,
-                        result.checkpoint.to_bytes(), _jsonable(result.diagnostics), forecasts, inputs.basin_ids)
+                        result.checkpoint.to_bytes(), _jsonable(result.diagnostics), forecasts, inputs.basin_ids,
+                        issued_baselines, verified_by)
 
 
 def _forecast(states, params, spec, inputs: CycleInputs) -> dict:
@@ -267,18 +280,14 @@ def forecast_rows(outputs: CycleOutputs):
                     yield basin, valid, quantity, f"p_level_{level + 1}", fc.exceedance[k, b, level]
 
 
-#: Quantities whose member daily means are stored for ensemble verification.
-VERIFIED_QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll")
-
-
 def member_rows(outputs: CycleOutputs):
-    """(basin_id, quantity, array (days, members)) of each member's daily mean, for verification."""
-    for quantity in VERIFIED_QUANTITIES:
+    """(basin, quantity, forecaster, observed variable, members (days, M)) of Bloomline's forecast
+    (where an observed series verifies it) and of the baselines issued with it."""
+    for (basin, quantity), variable in outputs.verified_by.items():
         fc = outputs.forecasts.get(quantity)
-        if fc is None:
-            continue
-        for b, basin in enumerate(outputs.basin_ids):
-            yield basin, quantity, fc.members[:, :, b]
+        if fc is not None:
+            yield basin, quantity, "bloomline", variable, fc.members[:, :, outputs.basin_ids.index(basin)]
+    yield from outputs.baselines
 
 
 def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,

@@ -88,13 +88,14 @@ def prune_checkpoints(engine: Engine, water_body_id: str, keep: int = 14) -> int
 def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datetime, status: str,
                       message: str, diagnostics: dict | None,
                       values: Iterable[tuple[str, dt.datetime, str, str, float]],
-                      *, members: Iterable[tuple[str, str, np.ndarray]] = (),
+                      *, members: Iterable[tuple[str, str, str, str, np.ndarray]] = (),
                       now: dt.datetime | None = None) -> int:
     """Store one forecast run and its values; returns the run id.
 
     ``values`` holds (basin_id, valid_utc, quantity, statistic, value) tuples
     (see ``monitor.store.schema.forecast_values``); ``members`` holds
-    (basin_id, quantity, array (days, members)) of each member's daily mean.
+    (basin_id, quantity, forecaster, observed variable, array (days, members))
+    of the members' daily means of Bloomline and of the baselines.
     A run for the same water body
     and analysis time replaces the earlier one, so re-running a cycle is
     idempotent.
@@ -117,24 +118,26 @@ def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datet
                 for b, t, q, s, v in values]
         if rows:
             conn.execute(insert(vals), rows)
-        ensembles = [dict(run_id=run_id, basin_id=b, quantity=q, days=a.shape[0], members=a.shape[1],
-                          data=np.ascontiguousarray(a, dtype="<f4").tobytes())
-                     for b, q, a in ((b, q, np.asarray(a)) for b, q, a in members)]
+        ensembles = [dict(run_id=run_id, basin_id=b, quantity=q, forecaster=f, variable=v, days=a.shape[0],
+                          members=a.shape[1], data=np.ascontiguousarray(a, dtype="<f4").tobytes())
+                     for b, q, f, v, a in ((b, q, f, v, np.asarray(a)) for b, q, f, v, a in members)]
         if ensembles:
             conn.execute(insert(schema.forecast_members), ensembles)
     return run_id
 
 
-def load_forecast_members(engine: Engine, run_ids: Iterable[int]) -> dict[tuple[int, str, str], np.ndarray]:
-    """Stored member daily means, keyed (run_id, basin_id, quantity) → array (days, members) [µg/L]."""
+def load_forecast_members(engine: Engine, run_ids: Iterable[int]
+                          ) -> dict[tuple[int, str, str, str], tuple[str, np.ndarray]]:
+    """Stored member daily means, keyed (run_id, basin_id, quantity, forecaster) →
+    (observed variable, array (days, members) [µg/L])."""
     t = schema.forecast_members
     ids = list(run_ids)
     out: dict[tuple[int, str, str], np.ndarray] = {}
     with engine.connect() as conn:
         for start in range(0, len(ids), 500):
             for row in conn.execute(select(t).where(t.c.run_id.in_(ids[start:start + 500]))):
-                out[(row.run_id, row.basin_id, row.quantity)] = np.frombuffer(
-                    bytes(row.data), dtype="<f4").astype(float).reshape(row.days, row.members)
+                out[(row.run_id, row.basin_id, row.quantity, row.forecaster)] = (row.variable, np.frombuffer(
+                    bytes(row.data), dtype="<f4").astype(float).reshape(row.days, row.members))
     return out
 
 

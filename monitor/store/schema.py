@@ -176,9 +176,11 @@ forecast_members = Table(
     Column("run_id", Integer, ForeignKey("forecast_runs.id"), primary_key=True),
     Column("basin_id", String(64), primary_key=True),
     Column("quantity", String(64), primary_key=True),
+    Column("forecaster", String(32), primary_key=True),  # bloomline | persistence | persistence_ensemble | …
+    Column("variable", String(64), nullable=False),   # the observed variable it is verified against
     Column("days", SmallInteger, nullable=False),     # forecast days K + 1 (day 0 = the analysis)
     Column("members", SmallInteger, nullable=False),  # ensemble members M
-    Column("data", LargeBinary, nullable=False),      # little-endian float32 (K + 1, M): each member's daily mean
+    Column("data", LargeBinary, nullable=False),      # little-endian float32 (K + 1, M): members' daily means
 )
 
 alert_status = Table(

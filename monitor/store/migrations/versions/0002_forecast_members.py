@@ -1,4 +1,4 @@
-"""Each member's daily mean of the chlorophyll forecasts, for ensemble verification.
+"""Members' daily means of the chlorophyll forecasts of Bloomline and of the baselines, for verification.
 
 Revision ID: 0002
 Revises: 0001
@@ -19,12 +19,14 @@ def upgrade() -> None:
         sa.Column("run_id", sa.Integer(), nullable=False),
         sa.Column("basin_id", sa.String(length=64), nullable=False),
         sa.Column("quantity", sa.String(length=64), nullable=False),
+        sa.Column("forecaster", sa.String(length=32), nullable=False),
+        sa.Column("variable", sa.String(length=64), nullable=False),
         sa.Column("days", sa.SmallInteger(), nullable=False),
         sa.Column("members", sa.SmallInteger(), nullable=False),
         sa.Column("data", sa.LargeBinary(), nullable=False),
         sa.ForeignKeyConstraint(["run_id"], ["forecast_runs.id"],
                                 name=op.f("fk_forecast_members_run_id_forecast_runs")),
-        sa.PrimaryKeyConstraint("run_id", "basin_id", "quantity", name=op.f("pk_forecast_members")),
+        sa.PrimaryKeyConstraint("run_id", "basin_id", "quantity", "forecaster", name=op.f("pk_forecast_members")),
     )
 
 

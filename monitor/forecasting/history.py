@@ -1,0 +1,106 @@
+"""The observed daily history a cycle's statistical baselines start from.
+
+Per basin, daily means (QC-passed, flag 1) on the windows of the forecast
+days — (end − 1 d, end] with ends at the analysis time of day
+(:mod:`monitor.store.daily`) — over the recent ``RECENT_DAYS`` and the same
+season of the ``CLIMATOLOGY_YEARS`` previous years. Which readings stand for
+which forecast quantity (one source of truth, used by verification too):
+
+* ``total_chlorophyll`` — the basin's one chlorophyll variable with the most
+  observed days: extracted ``chlorophyll_a`` where a basin is sampled daily,
+  otherwise in-situ ``chlorophyll_fluorescence`` (as reported, no gain
+  correction). One variable per basin keeps a series homogeneous.
+* ``cyanobacteria_chlorophyll`` — ``phycocyanin``, where a basin has it.
+* ``water_temperature`` — the regressor of the autoregressive baseline.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from sqlalchemy.engine import Engine
+
+from monitor.config import Config, WaterBodyConfig
+from monitor.store.daily import daily_means
+from monitor.timeutil import to_epoch_days
+
+#: Forecast quantity → the variables that observe it, in order of preference.
+OBSERVED_BY = {
+    "total_chlorophyll": ("chlorophyll_a", "chlorophyll_fluorescence"),
+    "cyanobacteria_chlorophyll": ("phycocyanin",),
+}
+REGRESSOR = "water_temperature"
+RECENT_DAYS = 120
+CLIMATOLOGY_YEARS = 2
+#: Days either side of the forecast window kept from previous years (the climatology uses ±15).
+CLIMATOLOGY_MARGIN_DAYS = 16
+
+
+@dataclass(frozen=True)
+class Series:
+    """One daily series: ``days_d`` (T,) window ends [epoch days], ascending; ``values`` (T,)."""
+
+    variable: str
+    days_d: np.ndarray
+    values: np.ndarray
+
+
+@dataclass(frozen=True)
+class ObservedHistory:
+    """Daily series per (basin id, quantity or ``water_temperature``)."""
+
+    series: dict[tuple[str, str], Series] = field(default_factory=dict)
+
+    def get(self, basin: str, quantity: str) -> Series | None:
+        return self.series.get((basin, quantity))
+
+
+def choose_variable(days_by_variable: dict[str, int], preference: tuple[str, ...]) -> str | None:
+    """The variable with the most observed days; ties go to the earlier in ``preference``."""
+    present = [v for v in preference if days_by_variable.get(v, 0) > 0]
+    return max(present, key=lambda v: (days_by_variable[v], -preference.index(v))) if present else None
+
+
+def series_by_basin(frame: pd.DataFrame, basin_of: dict[str, str]) -> ObservedHistory:
+    """Daily means (``monitor.store.daily.COLUMNS``) → one series per basin and quantity.
+
+    Several stations of one basin observing the same variable are averaged per day.
+    """
+    if frame.empty:
+        return ObservedHistory()
+    frame = frame.assign(basin_id=frame.station_id.map(basin_of))
+    daily = frame.groupby(["basin_id", "variable", "day_end_utc"]).value.mean().reset_index()
+    out: dict[tuple[str, str], Series] = {}
+    wanted = {**OBSERVED_BY, REGRESSOR: (REGRESSOR,)}
+    for basin, sub in daily.groupby("basin_id"):
+        counts = sub.groupby("variable").size().to_dict()
+        for quantity, preference in wanted.items():
+            variable = choose_variable(counts, preference)
+            if variable is None:
+                continue
+            s = sub[sub.variable == variable]
+            out[(basin, quantity)] = Series(variable, np.asarray(to_epoch_days(s.day_end_utc), dtype=float),
+                                            s.value.to_numpy(dtype=float))
+    return ObservedHistory(out)
+
+
+def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> ObservedHistory:
+    """The recent and same-season-earlier daily history of ``wb``'s basins up to ``analysis``."""
+    basin_of = {s.id: s.basin for s in config.stations_of(wb.id) if s.basin}
+    if not basin_of:
+        return ObservedHistory()
+    variables = sorted({v for vs in OBSERVED_BY.values() for v in vs} | {REGRESSOR})
+    day = dt.timedelta(days=1)
+    windows = [(analysis - RECENT_DAYS * day, analysis)]
+    for years in range(1, CLIMATOLOGY_YEARS + 1):
+        centre = analysis - dt.timedelta(days=round(365.25 * years))
+        windows.append((centre - CLIMATOLOGY_MARGIN_DAYS * day,
+                        min(centre + (wb.alerts.horizon_days + CLIMATOLOGY_MARGIN_DAYS) * day, windows[0][0])))
+    frames = [daily_means(engine, stations=list(basin_of), variables=variables, anchor=analysis, start=a, end=b)
+              for a, b in windows if b > a]
+    frame = pd.concat([f for f in frames if len(f)], ignore_index=True) if any(len(f) for f in frames) \
+        else frames[0]
+    return series_by_basin(frame.drop_duplicates(["station_id", "variable", "day_end_utc"]), basin_of)
