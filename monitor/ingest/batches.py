@@ -40,7 +40,8 @@ from sqlalchemy import insert, select, update
 from sqlalchemy.engine import Connection, Engine
 
 from monitor.ingest import qc
-from monitor.ingest.parsing import Parsed, Rejection, clean_text, parse_payload
+from monitor.ingest.parsing import Parsed, parse_payload
+from monitor.ingest.tables import Rejection, clean_text
 from monitor.store.schema import ingest_batches, rejected_rows
 from monitor.timeutil import now_utc
 
