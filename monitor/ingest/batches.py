@@ -41,6 +41,7 @@ from sqlalchemy.engine import Connection, Engine
 
 from monitor.ingest import qc
 from monitor.ingest.parsing import Parsed, parse_payload
+from monitor.ingest.qc_drift import DRIFT_BASELINE_DAYS, DRIFT_HOLD_DAYS, DRIFT_MATCH_WINDOW_H
 from monitor.ingest.tables import Rejection, clean_text
 from monitor.store.schema import ingest_batches, rejected_rows
 from monitor.timeutil import now_utc
@@ -364,12 +365,12 @@ def _qualify(conn, config, station, variable, settings, t, v, t_min, t_max, sour
     """
     if variable != "chlorophyll_fluorescence" or settings.get("drift_suspect_fraction") is None:
         return qc.run_qc(t, v, settings)
-    w = int(qc.DRIFT_MATCH_WINDOW_H * _NS_PER_H)
+    w = int(DRIFT_MATCH_WINDOW_H * _NS_PER_H)
     # the comparison governing a reading, its previous one and their baselines
-    back = int((2 * qc.DRIFT_HOLD_DAYS + qc.DRIFT_BASELINE_DAYS) * 24 * _NS_PER_H) + 2 * w
+    back = int((2 * DRIFT_HOLD_DAYS + DRIFT_BASELINE_DAYS) * 24 * _NS_PER_H) + 2 * w
     # a later sample within the hold time can confirm (or not) the comparison before it
     lab_t, lab_v = _lab_series(conn, config, station, t_min - back,
-                               t_max + int(qc.DRIFT_HOLD_DAYS * 24 * _NS_PER_H) + 2 * w)
+                               t_max + int(DRIFT_HOLD_DAYS * 24 * _NS_PER_H) + 2 * w)
     if lab_t.size == 0:
         return qc.run_qc(t, v, settings)
     around = _stored(conn, station, variable, source, int(lab_t.min()) - w, int(lab_t.max()) + w)
@@ -508,8 +509,8 @@ def _insert_readings(conn: Connection, rows: list[tuple]) -> int:
 
 def _requalify_fluorometers(conn: Connection, config, lab_station: str, t0: int, t1: int) -> None:
     """New lab chlorophyll-a: re-run QC of the fluorometers it checks, over the readings it affects."""
-    window = int(qc.DRIFT_MATCH_WINDOW_H * _NS_PER_H)
-    hold = int(qc.DRIFT_HOLD_DAYS * 24 * _NS_PER_H)
+    window = int(DRIFT_MATCH_WINDOW_H * _NS_PER_H)
+    hold = int(DRIFT_HOLD_DAYS * 24 * _NS_PER_H)
     for station in _fluorometer_stations(config, lab_station):
         settings = qc.settings_for(config, station, "chlorophyll_fluorescence")
         if settings.get("drift_suspect_fraction") is None:
@@ -519,7 +520,7 @@ def _requalify_fluorometers(conn: Connection, config, lab_station: str, t0: int,
         # readings after the previous comparison (its confirmation may change) up to those after the
         # comparisons whose baseline includes [t0, t1]
         lo = t0 - hold - 2 * window
-        hi = t1 + int(qc.DRIFT_BASELINE_DAYS * 24 * _NS_PER_H) + 2 * hold + window
+        hi = t1 + int(DRIFT_BASELINE_DAYS * 24 * _NS_PER_H) + 2 * hold + window
         stored = _stored(conn, station, "chlorophyll_fluorescence", None, lo - margin, hi + margin)
         for source in dict.fromkeys(stored.source.tolist()):
             g = stored.subset(stored.source == source)  # in time order, as queried
