@@ -24,7 +24,7 @@ from monitor.store import schema
 from monitor.alerting.caution import CAUTION
 from monitor.config import Config, load_config
 from monitor.alerting.frameworks import FRAMEWORKS
-from monitor.ingest.batches import feed_files
+from monitor.ingest.feeds.csv_folder import feed_files
 from monitor.store.readings import ingest_summary
 from monitor.app.service import Service
 from monitor.timeutil import UTC, as_utc
