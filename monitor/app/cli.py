@@ -12,6 +12,7 @@ import click
 from monitor.config import ConfigError, load_config
 from monitor.app.hindcast_cli import hindcast
 from monitor.app.ingest_cli import ingest
+from monitor.timeutil import now_utc, parse_utc
 
 
 def _load(path: str):
@@ -22,10 +23,8 @@ def _load(path: str):
 
 
 def _parse_time(value: str | None) -> dt.datetime:
-    if value is None:
-        return dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
-    t = dt.datetime.fromisoformat(value)
-    return t.replace(tzinfo=dt.timezone.utc) if t.tzinfo is None else t.astimezone(dt.timezone.utc)
+    """The --at option: ISO 8601 (naive = UTC), or now."""
+    return now_utc() if value is None else parse_utc(value)
 
 
 config_option = click.option("--config", "config_path", envvar="BLOOMLINE_CONFIG", required=True,

@@ -24,10 +24,10 @@ from monitor.store import schema
 from monitor.alerting.caution import CAUTION
 from monitor.config import Config, load_config
 from monitor.alerting.frameworks import FRAMEWORKS
-from monitor.ingest.batches import feed_files
+from monitor.ingest.feeds.csv_folder import feed_files
 from monitor.store.readings import ingest_summary
 from monitor.app.service import Service
-from monitor.timeutil import UTC
+from monitor.timeutil import UTC, as_utc
 
 SAMPLE_FEEDS = Path(__file__).resolve().parents[2] / "sample_feeds"
 FEED_FOLDERS = ("buoys", "lab", "inflows", "weather")
@@ -71,8 +71,7 @@ def season_days(engine) -> list[dt.datetime]:
                                    .where(r.c.variable == "chlorophyll_fluorescence")).one()
     if first is None:
         raise click.ClickException("the demo feeds hold no chlorophyll readings")
-    first = first.replace(tzinfo=UTC) if first.tzinfo is None else first
-    last = last.replace(tzinfo=UTC) if last.tzinfo is None else last
+    first, last = as_utc(first), as_utc(last)
     start = dt.datetime(first.year, first.month, first.day, tzinfo=UTC) + dt.timedelta(days=1)
     end = dt.datetime(last.year, last.month, last.day, tzinfo=UTC) + dt.timedelta(days=1)
     return list(pd.date_range(start, end, freq="1D").to_pydatetime())

@@ -29,7 +29,8 @@ def _files(path: Path, pattern: str) -> list[Path]:
 def ingest(target: str, feed_name: str, config_path: str | None) -> None:
     """Load PATH (a file or folder) or URL into the store as the feed NAME describes."""
     from monitor.store.db import open_store
-    from monitor.ingest.batches import BatchResult, ingest_bytes, ingest_path
+    from monitor.ingest.batches import BatchResult, ingest_bytes
+    from monitor.ingest.feeds.csv_folder import ingest_path
 
     path = config_path
     try:

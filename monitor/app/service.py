@@ -20,7 +20,8 @@ from monitor.store import runs as store
 from monitor.config import Config
 from monitor.store.db import open_store
 from monitor.ingest.feeds import poll_due, start_mqtt_feeds
-from monitor.ingest.batches import BatchResult, ingest_all
+from monitor.ingest.batches import BatchResult
+from monitor.ingest.feeds.csv_folder import ingest_all
 from monitor.timeutil import now_utc
 
 log = logging.getLogger("bloomline")

@@ -12,7 +12,7 @@ from pathlib import Path
 from alembic import command
 from alembic.config import Config as AlembicConfig
 from sqlalchemy import create_engine, event
-from sqlalchemy.engine import Engine
+from sqlalchemy.engine import Connection, Engine
 
 MIGRATIONS = Path(__file__).with_name("migrations")
 
@@ -35,6 +35,11 @@ def connect(url: str, *, echo: bool = False) -> Engine:
 
         return engine
     return create_engine(url, echo=echo, pool_pre_ping=True)
+
+
+def param_marker(conn: Connection) -> str:
+    """The driver's placeholder for a bound parameter in raw SQL: ``?`` (SQLite) or ``%s`` (psycopg)."""
+    return "?" if conn.dialect.paramstyle == "qmark" else "%s"
 
 
 def alembic_config(engine: Engine) -> AlembicConfig:

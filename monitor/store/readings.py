@@ -7,7 +7,6 @@ units (:mod:`monitor.ingest.variables`); QC flags as in QARTOD (1 pass,
 
 from __future__ import annotations
 
-import datetime as dt
 from collections import Counter
 from typing import Iterable
 
@@ -17,27 +16,9 @@ from sqlalchemy import String, and_, case, func, select, type_coerce
 from sqlalchemy.engine import Engine
 
 from monitor.store.schema import driver_forecasts, ingest_batches, readings, rejected_rows
+from monitor.timeutil import aware_utc, utc_from_db, utc_series_from_db
 
 READING_COLUMNS = ["station_id", "variable", "time_utc", "value", "qc_flag", "source"]
-
-
-def _utc_series(values) -> pd.Series:
-    """Stored UTCDateTime values (aware datetimes after SQLAlchemy) → tz-aware UTC timestamps."""
-    vals = list(values)
-    if vals and isinstance(vals[0], str):  # raw SQLite text, "YYYY-MM-DD HH:MM:SS.ffffff" naive UTC
-        s = pd.to_datetime(pd.Series(vals), format="ISO8601", utc=True)
-    else:
-        s = pd.to_datetime(pd.Series(vals, dtype=object), utc=True)
-    return s.astype("datetime64[ns, UTC]") if len(s) else pd.Series([], dtype="datetime64[ns, UTC]")
-
-
-def _check_time(name: str, t) -> dt.datetime | None:
-    if t is None:
-        return None
-    t = pd.Timestamp(t)
-    if t.tzinfo is None:
-        raise ValueError(f"{name} must be an aware datetime (UTC), got naive {t!r}")
-    return t.tz_convert("UTC").to_pydatetime()
 
 
 def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
@@ -49,8 +30,8 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
     station_id, variable, time_utc (tz-aware UTC), value, qc_flag, source;
     sorted by time (then station, variable, source).
     """
-    start = _check_time("start", start)
-    end = _check_time("end", end)
+    start = aware_utc(start, "start")
+    end = aware_utc(end, "end")
     cond = [readings.c.qc_flag <= int(max_flag)]
     if stations is not None:
         cond.append(readings.c.station_id.in_(list(stations)))
@@ -75,7 +56,7 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
                              "value": pd.Series([], dtype=float), "qc_flag": pd.Series([], dtype=np.int64),
                              "source": pd.Series([], dtype=object)})
     st, var, t, v, f, src = zip(*rows)
-    return pd.DataFrame({"station_id": list(st), "variable": list(var), "time_utc": _utc_series(t),
+    return pd.DataFrame({"station_id": list(st), "variable": list(var), "time_utc": utc_series_from_db(t),
                          "value": np.array([np.nan if x is None else x for x in v], dtype=float),
                          "qc_flag": np.asarray(f, dtype=np.int64), "source": list(src)})
 
@@ -86,7 +67,7 @@ def latest_driver_forecast(engine: Engine, station_id: str, *, issued_at_or_befo
     Columns variable, valid_utc (tz-aware UTC), value (canonical units),
     issued_utc; sorted by variable and valid time; empty if none.
     """
-    limit = _check_time("issued_at_or_before", issued_at_or_before)
+    limit = aware_utc(issued_at_or_before, "issued_at_or_before")
     with engine.connect() as conn:
         issued = conn.execute(select(func.max(driver_forecasts.c.issued_utc)).where(
             driver_forecasts.c.station_id == station_id, driver_forecasts.c.issued_utc <= limit)).scalar()
@@ -95,10 +76,7 @@ def latest_driver_forecast(engine: Engine, station_id: str, *, issued_at_or_befo
                                  "valid_utc": pd.Series([], dtype="datetime64[ns, UTC]"),
                                  "value": pd.Series([], dtype=float),
                                  "issued_utc": pd.Series([], dtype="datetime64[ns, UTC]")})
-        if isinstance(issued, str):  # func.max bypasses the column type in SQLite
-            issued = pd.Timestamp(issued, tz="UTC").to_pydatetime()
-        elif issued.tzinfo is None:
-            issued = issued.replace(tzinfo=dt.timezone.utc)
+        issued = utc_from_db(issued)  # func.max bypasses the column type in SQLite: text there
         rows = conn.execute(select(driver_forecasts.c.variable, driver_forecasts.c.valid_utc,
                                    driver_forecasts.c.value, driver_forecasts.c.issued_utc)
                             .where(driver_forecasts.c.station_id == station_id,
@@ -106,8 +84,8 @@ def latest_driver_forecast(engine: Engine, station_id: str, *, issued_at_or_befo
                             .order_by(driver_forecasts.c.variable, driver_forecasts.c.valid_utc,
                                       driver_forecasts.c.source)).fetchall()
     var, valid, value, iss = zip(*rows)
-    frame = pd.DataFrame({"variable": list(var), "valid_utc": _utc_series(valid),
-                          "value": np.asarray(value, dtype=float), "issued_utc": _utc_series(iss)})
+    frame = pd.DataFrame({"variable": list(var), "valid_utc": utc_series_from_db(valid),
+                          "value": np.asarray(value, dtype=float), "issued_utc": utc_series_from_db(iss)})
     # two sources with the same forecast: keep the first per (variable, valid time)
     return frame.drop_duplicates(["variable", "valid_utc"], keep="first").reset_index(drop=True)
 
@@ -148,7 +126,7 @@ def batches_frame(engine: Engine, feed: str | None = None, limit: int | None = N
         rows = conn.execute(q).mappings().fetchall()
     frame = pd.DataFrame([dict(r) for r in rows], columns=[c.name for c in ingest_batches.columns])
     if len(frame):
-        frame["received_at"] = _utc_series(frame["received_at"])
+        frame["received_at"] = utc_series_from_db(frame["received_at"])
     return frame
 
 

@@ -6,8 +6,6 @@ One ``MetaData`` for every table; alembic migrations in
 
 from __future__ import annotations
 
-import datetime as dt
-
 from sqlalchemy import (
     JSON,
     Column,
@@ -25,6 +23,8 @@ from sqlalchemy import (
     UniqueConstraint,
 )
 from sqlalchemy.types import TypeDecorator
+
+from monitor.timeutil import as_utc, naive_utc
 
 metadata = MetaData(
     naming_convention={
@@ -47,12 +47,12 @@ class UTCDateTime(TypeDecorator):
             return None
         if value.tzinfo is None:
             raise ValueError(f"naive datetime {value!r}: Bloomline stores aware UTC times only")
-        return value.astimezone(dt.timezone.utc).replace(tzinfo=None)
+        return naive_utc(value)
 
     def process_result_value(self, value, dialect):
         if value is None:
             return None
-        return value.replace(tzinfo=dt.timezone.utc)
+        return as_utc(value)
 
 
 water_bodies = Table(

@@ -2,7 +2,7 @@
 
 One year of 15-minute readings of 6 variables at 3 stations (3 × 35,040 rows
 × 6 columns = 630,720 readings), written as one wide CSV per station and
-month (36 files), ingested with ``monitor.ingest.batches.ingest_path`` — parsing,
+month (36 files), ingested with ``monitor.ingest.feeds.csv_folder.ingest_path`` — parsing,
 unit conversion (°F → °C, km/h → m/s), QARTOD QC and storage — into a fresh
 migrated SQLite database. The reference is a bare ``sqlite3`` ``executemany``
 of the same rows, already parsed and converted, into the same schema (a
@@ -33,7 +33,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from monitor.config import parse_config  # noqa: E402
 from monitor.store.db import open_store  # noqa: E402
-from monitor.ingest.batches import SQLITE_CACHE_KIB, db_times, ingest_path  # noqa: E402
+from monitor.ingest.batches import SQLITE_CACHE_KIB  # noqa: E402
+from monitor.ingest.feeds.csv_folder import ingest_path  # noqa: E402
+from monitor.timeutil import db_times  # noqa: E402
 
 STATIONS = ("BX-1", "BX-2", "BX-3")
 COLUMNS = {  # column → (variable, unit)

@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 import requests
 
 from monitor.ingest.batches import BatchResult, ingest_bytes
-from monitor.timeutil import now_utc
+from monitor.timeutil import UTC, as_utc, now_utc
 
 MAX_BACKOFF = dt.timedelta(hours=6)
 USER_AGENT = "bloomline-ingest/0.1"
@@ -68,9 +68,7 @@ def _retry_after(value: str | None) -> float | None:
         when = email.utils.parsedate_to_datetime(value)
     except (TypeError, ValueError):
         return None
-    if when.tzinfo is None:
-        when = when.replace(tzinfo=dt.timezone.utc)
-    return max(0.0, (when - dt.datetime.now(dt.timezone.utc)).total_seconds())
+    return max(0.0, (as_utc(when) - dt.datetime.now(UTC)).total_seconds())
 
 
 def fetch(url: str, *, timeout_s: float, session: requests.Session | None = None,

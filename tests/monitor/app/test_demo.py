@@ -51,7 +51,7 @@ def _expected_counts(config) -> tuple[int, int]:
     below detection is one rejected value); any other line is one rejected
     row. Returns (readings received, rejections).
     """
-    from monitor.ingest.batches import feed_files
+    from monitor.ingest.feeds.csv_folder import feed_files
 
     total = rejected = 0
     for feed in config.feeds:

@@ -14,8 +14,9 @@ from pathlib import Path
 import numpy as np
 from sqlalchemy import func, select
 
-from monitor.ingest import batches as ingest_mod
-from monitor.ingest.batches import ingest_all, ingest_bytes, ingest_feed, ingest_path
+from monitor.ingest import qc_storage as ingest_mod
+from monitor.ingest.batches import ingest_bytes
+from monitor.ingest.feeds.csv_folder import ingest_all, ingest_feed, ingest_path
 from monitor.store.readings import ingest_summary, readings_frame, rejected_rows_frame
 from monitor.store.schema import ingest_batches, readings
 from tests.monitor.conftest import NOW, buoy_csv, fernwater, quarter_hours
@@ -233,7 +234,8 @@ def test_killing_the_process_in_the_middle_of_a_batch_leaves_none_of_it(tmp_path
         import sys, time
         sys.path.insert(0, {str(ROOT)!r})
         from pathlib import Path
-        from monitor.ingest import batches as ingest
+        from monitor.ingest import qc_storage as ingest
+        from monitor.ingest.feeds.csv_folder import ingest_feed
         from monitor.store.db import open_store
         from tests.monitor.conftest import fernwater, NOW
         config = fernwater(Path({str(tmp_path)!r}))
@@ -245,7 +247,7 @@ def test_killing_the_process_in_the_middle_of_a_batch_leaves_none_of_it(tmp_path
             time.sleep(60)
             return n
         ingest._insert_readings = slow
-        ingest.ingest_feed(engine, config, config.feed("buoys"), now=NOW)
+        ingest_feed(engine, config, config.feed("buoys"), now=NOW)
     """)
     with subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.PIPE, text=True, cwd=ROOT) as proc:
         try:

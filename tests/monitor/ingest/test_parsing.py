@@ -9,7 +9,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from monitor.ingest.parsing import decode, parse_payload, parse_times
+from monitor.ingest.cells import parse_times
+from monitor.ingest.parsing import parse_payload
+from monitor.ingest.tables import decode
 from tests.monitor.conftest import NOW, fernwater
 
 

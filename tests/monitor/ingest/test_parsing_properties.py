@@ -179,13 +179,13 @@ def test_ingest_counts_add_up_and_reingest_changes_nothing(payloads):
 @given(st.lists(st.lists(st.text(alphabet=st.characters(blacklist_characters='"\r\x00'), max_size=8),
                          min_size=1, max_size=5), min_size=1, max_size=8))
 def test_the_plain_csv_fast_path_reads_like_the_csv_module(rows):
-    from monitor.ingest.parsing import _csv_table
+    from monitor.ingest.tables import csv_table
 
     text = "\n".join(",".join(r) for r in rows) + "\n"
     fast_lines: list[int] = []
     slow_lines: list[int] = []
-    fast = _csv_table(text, [], fast_lines)
-    slow = _csv_table(text, [], slow_lines, fast=False)
+    fast = csv_table(text, [], fast_lines)
+    slow = csv_table(text, [], slow_lines, fast=False)
     assert (fast is None) == (slow is None)
     if fast is not None:
         assert (fast.header, fast.rows, fast.lines, fast.raws) == (slow.header, slow.rows, slow.lines, slow.raws)

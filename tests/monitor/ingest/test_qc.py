@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 
 from monitor.ingest import qc
-
-NS_PER_H = 3_600_000_000_000
+from monitor.ingest.qc_drift import drift
+from monitor.timeutil import NS_PER_HOUR
 
 
 def test_spike_worked_case_from_the_dissolved_oxygen_manual_definition():
@@ -76,7 +76,7 @@ def test_aggregate_follows_the_flag_precedence():
 
 
 def test_run_qc_marks_missing_values_9_and_skips_them_as_neighbours():
-    t = np.arange(6) * NS_PER_H // 4
+    t = np.arange(6) * NS_PER_HOUR // 4
     values = np.array([1.0, 1.0, np.nan, 1.0, 1.0, 1.0])
     settings = {**qc.thresholds("phycocyanin"), "flat_line_suspect_h": None, "flat_line_fail_h": None}
     flag, digits = qc.run_qc(t, values, settings)
@@ -93,9 +93,9 @@ def test_drift_needs_two_successive_deviating_lab_comparisons():
     hours = np.arange(0, 24 * 30, 0.25)
     sensor = np.full(hours.size, 10.0)
     lab_t = np.array([1, 8, 15, 22]) * 24.0
-    one_odd = qc.drift(hours, sensor, lab_t, np.array([10.0, 5.0, 10.0, 10.0]), suspect_fraction=0.3)
+    one_odd = drift(hours, sensor, lab_t, np.array([10.0, 5.0, 10.0, 10.0]), suspect_fraction=0.3)
     assert set(one_odd[hours >= 23].tolist()) == {1}  # a single odd sample is not drift
-    two = qc.drift(hours, sensor, lab_t, np.array([10.0, 5.0, 5.0, 10.0]), suspect_fraction=0.3)
+    two = drift(hours, sensor, lab_t, np.array([10.0, 5.0, 5.0, 10.0]), suspect_fraction=0.3)
     assert (two[hours < 23] == 2).all()  # before the first comparison
     assert (two[(hours >= 24) & (hours < 24 * 8 - 1)] == 1).all()
     assert (two[(hours >= 24 * 8) & (hours < 24 * 22 - 1)] == 3).all()  # both deviating samples' weeks
@@ -104,7 +104,7 @@ def test_drift_needs_two_successive_deviating_lab_comparisons():
 
 def test_drift_check_ignores_lab_samples_far_from_any_sensor_reading():
     hours = np.arange(0, 10, 0.25)
-    flags = qc.drift(hours, np.full(hours.size, 10.0), np.array([100.0]), np.array([1.0]), 0.5)
+    flags = drift(hours, np.full(hours.size, 10.0), np.array([100.0]), np.array([1.0]), 0.5)
     assert (flags == 2).all()
 
 
@@ -129,14 +129,14 @@ def test_qc_of_a_split_series_with_context_equals_qc_of_the_whole():
     the second half plus ``context_hours`` of history equal those from the whole series."""
     rng = np.random.default_rng(7)
     n = 960
-    t = np.arange(n, dtype=np.int64) * (NS_PER_H // 4)
+    t = np.arange(n, dtype=np.int64) * (NS_PER_HOUR // 4)
     v = 5 + np.cumsum(rng.normal(0, 0.3, n))
     v[300:340] = v[300]  # a flat stretch
     v[500] += 40  # a spike
     v[700:705] = np.nan  # a short outage
     settings = qc.thresholds("chlorophyll_fluorescence")
     whole_flag, whole_digits = qc.run_qc(t, v, settings)
-    ctx = int(qc.context_hours(settings) * NS_PER_H)
+    ctx = int(qc.context_hours(settings) * NS_PER_HOUR)
     for cut in (320, 501, 702):
         start = np.searchsorted(t, t[cut] - 2 * ctx)
         part_flag, part_digits = qc.run_qc(t[start:], v[start:], settings)
@@ -183,6 +183,6 @@ def test_drift_is_judged_against_the_sensors_own_ratio_to_the_lab():
     lab_v = np.full(6, 10.0)
     sensor = np.full(hours.size, 13.0)
     sensor[hours >= lab_t[3] - 2] = 16.9
-    flags = qc.drift(hours, sensor, lab_t, lab_v, suspect_fraction=0.25)
+    flags = drift(hours, sensor, lab_t, lab_v, suspect_fraction=0.25)
     assert (flags[(hours >= lab_t[0]) & (hours < lab_t[3] - 2)] == 1).all()
     assert (flags[hours >= lab_t[3]] == 3).all()

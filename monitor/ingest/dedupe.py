@@ -1,0 +1,66 @@
+"""Repeats inside one batch: equal values are duplicates, differing ones rejections.
+
+A reading is identified by its station, variable and time (and issue time
+for weather forecasts); the first record of a key wins, a later record with
+the same value counts as a duplicate and one with another value is
+rejected, naming the line it conflicts with.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from monitor.ingest.parsing import Parsed
+from monitor.ingest.tables import Rejection
+
+
+def same_values(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Element-wise: both missing (NaN), or equal within a relative 1e-9 (absolute below 1)."""
+    both_nan = np.isnan(a) & np.isnan(b)
+    with np.errstate(invalid="ignore"):
+        close = np.abs(a - b) <= 1e-9 * np.maximum(1.0, np.abs(b))
+    return both_nan | close
+
+
+def dedupe_batch(parsed: Parsed, rejections: list[Rejection], keys: list[str]) -> tuple[pd.DataFrame, int]:
+    """Drop repeats inside the batch: equal values are duplicates, differing ones rejections.
+
+    keys: ``["station", "variable", "t"]``, with ``"issued"`` for weather
+    forecasts. Returns the remaining readings sorted by station, variable,
+    (issue time,) time [ns], with an integer column ``series`` numbering the
+    (station, variable) series in that order, and the number of duplicates.
+    """
+    issued = "issued" in keys
+    n = parsed.value.size
+    st_codes, st_names = pd.factorize(parsed.station, sort=True)
+    var_codes, var_names = pd.factorize(parsed.variable, sort=True)
+    sort_keys = [parsed.line, parsed.time_ns] + ([parsed.issued_ns] if issued else []) + [var_codes, st_codes]
+    order = np.lexsort(sort_keys) if n else np.array([], dtype=np.int64)
+    st_c, var_c, t = st_codes[order], var_codes[order], parsed.time_ns[order]
+    value, line = parsed.value[order], parsed.line[order]
+    same_key = np.zeros(n, dtype=bool)
+    if n > 1:
+        same_key[1:] = (st_c[1:] == st_c[:-1]) & (var_c[1:] == var_c[:-1]) & (t[1:] == t[:-1])
+        if issued:
+            iss = parsed.issued_ns[order]
+            same_key[1:] &= iss[1:] == iss[:-1]
+    duplicate = 0
+    if same_key.any():
+        first = np.maximum.accumulate(np.where(same_key, 0, np.arange(n)))
+        equal = same_values(value, value[first])
+        conflict = same_key & ~equal
+        for i in np.nonzero(conflict)[0]:
+            j = first[i]
+            rejections.append(Rejection(int(line[i]), parsed.raw_text(line[i]),
+                                        f"{var_names[var_c[i]]} at the same time as line {line[j]} "
+                                        f"with another value ({value[i]!r} vs {value[j]!r})"))
+        duplicate = int((same_key & equal).sum())
+    keep = ~same_key
+    series = (st_c.astype(np.int64) * max(len(var_names), 1) + var_c)[keep]
+    frame = pd.DataFrame({"station": np.asarray(st_names, dtype=object)[st_c[keep]] if n else np.array([], dtype=object),
+                          "variable": np.asarray(var_names, dtype=object)[var_c[keep]] if n else np.array([], dtype=object),
+                          "t": t[keep], "value": value[keep], "line": line[keep], "series": series})
+    if issued:
+        frame["issued"] = parsed.issued_ns[order][keep]
+    return frame, duplicate
