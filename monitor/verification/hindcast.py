@@ -3,11 +3,11 @@
 1. :func:`monitor.verification.replay.replay` runs the service's daily cycle
    at each analysis time in a scratch copy of the store (the live store is
    never written).
-2. :func:`monitor.verification.observed.daily_observed` builds the observed
-   daily series from the live store's QC-passed readings.
-3. :func:`monitor.verification.pairs.water_body_pairs` pairs each issued run
-   and each baseline with the observations that came later.
-4. :mod:`monitor.verification.summary` scores them by lead day, and
+   Every run stores Bloomline's members and the baselines issued with it.
+2. :func:`monitor.verification.pairs.water_body_pairs` pairs each issued run
+   and its baselines with the QC-passed observations of the live store that
+   came later.
+3. :mod:`monitor.verification.summary` scores them by lead day, and
    :mod:`monitor.verification.warnings` finds each first crossing of an
    alert level and how long the warning stood before it.
 """
@@ -30,13 +30,9 @@ from monitor.config import Config
 from monitor.store import schema
 from monitor.timeutil import UTC
 from monitor.verification import summary
-from monitor.verification.observed import daily_observed
 from monitor.verification.pairs import Pairs, water_body_pairs
 from monitor.verification.replay import analysis_days, replay
 from monitor.verification.warnings import warning_table
-
-QUANTITIES = ("total_chlorophyll", "cyanobacteria_chlorophyll")
-
 
 @dataclass
 class HindcastResult:
@@ -90,15 +86,9 @@ def run_hindcast(config: Config, engine: Engine, days: list[dt.datetime], *, onl
         for day in replayed:
             for s in day.summaries:
                 statuses[s["status"]] = statuses.get(s["status"], 0) + 1
-        parts, observed_by_wb = [], {}
-        for wb in bodies:
-            observed = daily_observed(engine, config, wb, days[0], days[0] - dt.timedelta(days=400),
-                                      days[-1] + dt.timedelta(days=wb.alerts.horizon_days + 1))
-            observed_by_wb[wb.id] = observed
-            parts.append(water_body_pairs(
-                scratch, wb.id, observed, wb.alerts.horizon_days, QUANTITIES,
-                tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
-                progress=(lambda: progress("score", 1)) if progress else None))
+        parts = [water_body_pairs(scratch, engine, config, wb,
+                                  progress=(lambda: progress("score", 1)) if progress else None)
+                 for wb in bodies]
         scratch.dispose()
     finally:
         if keep_folder is None:
@@ -111,5 +101,5 @@ def run_hindcast(config: Config, engine: Engine, days: list[dt.datetime], *, onl
         by_lead=summary.score_table(pairs, ["quantity", "lead_days"]),
         by_basin=summary.score_table(pairs, ["water_body", "basin_id", "quantity", "lead_days"], levels, warn),
         skill_by_lead=summary.skill_table(pairs, ["quantity", "lead_days"]),
-        warnings=warning_table(config, bodies, replayed, observed_by_wb, pairs.outlooks),
+        warnings=warning_table(bodies, replayed, pairs.observed, pairs.outlooks),
         statuses=statuses, seconds=time.perf_counter() - started)

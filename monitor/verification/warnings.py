@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from assimilation.warning_lead import warning_leads
-from monitor.config import Config, WaterBodyConfig
+from monitor.config import WaterBodyConfig
 from monitor.timeutil import from_epoch_days, to_epoch_days
 from monitor.verification.pairs import BASELINES
 
@@ -25,17 +25,16 @@ COLUMNS = ["water_body", "basin_id", "level", "threshold_ugL", "quantity", "cros
            "lead_days"]
 
 
-def _alert_series(observed: pd.DataFrame, basin: str) -> tuple[str, pd.Series]:
+def _alert_series(observed: dict, water_body: str, basin: str) -> tuple[str, pd.Series]:
     """(quantity, daily values indexed by window end) the alert levels are judged on in ``basin``."""
     for quantity in ("cyanobacteria_chlorophyll", "total_chlorophyll"):
-        sub = observed[(observed.basin_id == basin) & (observed.quantity == quantity)]
-        if len(sub):
-            return quantity, sub.set_index("day_end_utc").value
+        frame = observed.get((water_body, basin, quantity))
+        if frame is not None and len(frame):
+            return quantity, frame.value
     return "", pd.Series(dtype=float)
 
 
-def warning_table(config: Config, bodies: list[WaterBodyConfig], replayed, observed_by_wb: dict[str, pd.DataFrame],
-                  outlooks: pd.DataFrame) -> pd.DataFrame:
+def warning_table(bodies: list[WaterBodyConfig], replayed, observed: dict, outlooks: pd.DataFrame) -> pd.DataFrame:
     """One row per (first crossing in a season, forecaster) with the warning lead [d]."""
     if not replayed:
         return pd.DataFrame(columns=COLUMNS)
@@ -43,9 +42,8 @@ def warning_table(config: Config, bodies: list[WaterBodyConfig], replayed, obser
     days_d = np.asarray(to_epoch_days(pd.DatetimeIndex(days)), dtype=float)
     rows = []
     for wb in bodies:
-        observed = observed_by_wb.get(wb.id, pd.DataFrame())
         for basin in (b.id for b in wb.basins):
-            quantity, series = _alert_series(observed, basin) if len(observed) else ("", pd.Series(dtype=float))
+            quantity, series = _alert_series(observed, wb.id, basin)
             if not quantity:
                 continue
             values = series.reindex(pd.DatetimeIndex(days)).to_numpy(dtype=float)
