@@ -18,9 +18,6 @@ from sqlalchemy.engine import Engine
 
 from monitor.store.schema import driver_forecasts, ingest_batches, readings, rejected_rows
 
-READING_COLUMNS = ["station_id", "variable", "time_utc", "value", "qc_flag", "source"]
-
-
 def _utc_series(values) -> pd.Series:
     """Stored UTCDateTime values (aware datetimes after SQLAlchemy) → tz-aware UTC timestamps."""
     vals = list(values)
