@@ -16,8 +16,10 @@ import io
 
 from flask import Blueprint, Response, abort, jsonify, request, url_for
 
-from monitor.store import status
 from monitor.alerting.caution import CAUTION
+from monitor.alerting.levels import level_label
+from monitor.forecasting.quantities import QUANTITIES, UNITS
+from monitor.store import status
 from web import get_config, get_engine
 
 api = Blueprint("api", __name__)
@@ -94,8 +96,8 @@ def _basins_arg(wb) -> list[str]:
 
 def _quantity_arg() -> str | None:
     q = request.args.get("quantity")
-    if q is not None and q not in status.QUANTITIES:
-        abort(400, description=f"quantity must be one of {', '.join(status.QUANTITIES)}, got {q!r}")
+    if q is not None and q not in QUANTITIES:
+        abort(400, description=f"quantity must be one of {', '.join(QUANTITIES)}, got {q!r}")
     return q
 
 
@@ -195,8 +197,7 @@ def _forecast_response(wb, run: dict):
         day[r["statistic"]] = r["value"]
     return _json({
         "water_body_id": wb.id, "run": _run_summary(run),
-        "units": {"cyanobacteria_chlorophyll": "ug/L", "total_chlorophyll": "ug/L",
-                  "nitrogen": "ug N/L", "phosphorus": "ug P/L", "p_level_<n>": "probability 0-1"},
+        "units": {**UNITS, "p_level_<n>": "probability 0-1"},
         "levels": status.framework_info(wb)["levels"],
         "basins": {b: {q: list(days.values()) for q, days in per_basin[b].items()} for b in basins},
     })
@@ -268,6 +269,6 @@ def alert_events(water_body_id: str):
     if fmt == "csv":
         return _csv(events, EVENT_COLUMNS, f"{wb.id}-alert-events.csv")
     for e in events:
-        e["from_level_name"] = status.level_info(wb, e["from_level"])["name"]
-        e["to_level_name"] = status.level_info(wb, e["to_level"])["name"]
+        e["from_level_name"] = level_label(wb, e["from_level"])
+        e["to_level_name"] = level_label(wb, e["to_level"])
     return _json({"water_body_id": wb.id, "events": events})

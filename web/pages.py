@@ -6,7 +6,7 @@ import datetime as dt
 
 from flask import Blueprint, Response, abort, render_template, request
 
-from monitor.alerting import notify, subscriptions
+from monitor.alerting import outbox, subscriptions
 from monitor.store import status
 from web import get_config, get_engine, now
 from web.plots import FORMATS, fan_chart
@@ -129,7 +129,7 @@ def subscribe():
                 error = str(exc) if isinstance(exc, subscriptions.SubscriptionError) else "Choose an alert level."
             else:
                 if not sub.active:
-                    notify.enqueue_confirmation(engine, wb, sub, base_url=cfg.service.base_url, now=now())
+                    outbox.enqueue_confirmation(engine, wb, sub, base_url=cfg.service.base_url, now=now())
                 return render_template("subscribe_done.html", wb=wb, sub=sub), 201
     return render_template("subscribe.html", form=form, error=error), (400 if error else 200)
 

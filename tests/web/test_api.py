@@ -14,6 +14,7 @@ from flask import Blueprint
 
 from monitor.alerting.rules import evaluate_run
 from monitor.alerting.caution import CAUTION
+from monitor.alerting.levels import NO_LEVEL
 
 
 def test_water_bodies_lists_basins_and_the_framework_with_its_source(client):
@@ -32,7 +33,7 @@ def test_status_carries_the_caution_and_max_probability_per_level(client):
     assert body["caution"] == CAUTION and r.headers["X-Bloomline-Caution"] == CAUTION
     basins = {b["id"]: b for b in body["water_bodies"][0]["basins"]}
     assert basins["west"]["p_max_within_horizon"] == {"1": 0.8, "2": 0.02}
-    assert basins["west"]["level"] == 0 and basins["west"]["level_name"] == "No alert level forecast"
+    assert basins["west"]["level"] == 0 and basins["west"]["level_name"] == NO_LEVEL == "no alert level forecast"
     # observed: mean of the QC-passed readings of the last UTC day (readings 168..191 of the seeded
     # series 6.0 + 0.01·i fall on 10 August); the failed spike (QC flag 4) in that day is left out
     assert basins["west"]["observed"]["day"] == "2026-08-10T00:00:00Z"
