@@ -20,7 +20,7 @@ from monitor.alerting.caution import CAUTION
 from monitor.alerting.levels import level_label
 from monitor.forecasting.quantities import QUANTITIES, UNITS
 from monitor.store import status
-from web import get_config, get_engine
+from web import get_config, get_engine, water_body_or_404
 
 api = Blueprint("api", __name__)
 
@@ -75,13 +75,6 @@ def _time_arg(name: str) -> dt.datetime | None:
     except ValueError:
         abort(400, description=f"{name} must be an ISO 8601 date or time, got {value!r}")
     return t if t.tzinfo is not None else t.replace(tzinfo=dt.timezone.utc)
-
-
-def _water_body(water_body_id: str):
-    try:
-        return get_config().water_body(water_body_id)
-    except KeyError:
-        abort(404, description=f"no water body {water_body_id!r}")
 
 
 def _basins_arg(wb) -> list[str]:
@@ -160,7 +153,7 @@ def water_bodies():
 
 @api.route("/water-bodies/<water_body_id>")
 def water_body(water_body_id: str):
-    return _json(_describe(_water_body(water_body_id)), caution=False)
+    return _json(_describe(water_body_or_404(water_body_id)), caution=False)
 
 
 @api.route("/status")
@@ -172,7 +165,7 @@ def all_status():
 
 @api.route("/water-bodies/<water_body_id>/status")
 def water_body_status(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     return _json(_status_payload(status.water_body_overview(get_engine(), get_config(), wb)))
 
 
@@ -205,7 +198,7 @@ def _forecast_response(wb, run: dict):
 
 @api.route("/water-bodies/<water_body_id>/forecast")
 def latest_forecast(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     run = status.latest_run(get_engine(), wb.id)
     if run is None:
         abort(404, description=f"no forecast has been issued for {wb.id} yet")
@@ -214,7 +207,7 @@ def latest_forecast(water_body_id: str):
 
 @api.route("/water-bodies/<water_body_id>/runs/<int:run_id>/forecast")
 def run_forecast(water_body_id: str, run_id: int):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     run = status.get_run(get_engine(), run_id)
     if run is None or run["water_body_id"] != wb.id:
         abort(404, description=f"{wb.id} has no forecast run {run_id}")
@@ -223,7 +216,7 @@ def run_forecast(water_body_id: str, run_id: int):
 
 @api.route("/water-bodies/<water_body_id>/runs")
 def runs(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     limit = request.args.get("limit", type=int)
     if limit is not None and limit < 1:
         abort(400, description="limit must be a positive integer")
@@ -241,7 +234,7 @@ HISTORY_COLUMNS = ["run_id", "analysis_utc", "status", "basin_id", "quantity", *
 
 @api.route("/water-bodies/<water_body_id>/history")
 def history(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     fmt = _format()
     quantity = _quantity_arg() or status.QUANTITY
     start, end = _time_arg("start"), _time_arg("end")
@@ -260,7 +253,7 @@ EVENT_COLUMNS = ["id", "water_body_id", "basin_id", "time_utc", "from_level", "t
 
 @api.route("/water-bodies/<water_body_id>/alert-events")
 def alert_events(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     fmt = _format()
     basins = _basins_arg(wb)
     events = [e for e in status.list_alert_events(get_engine(), wb.id, start=_time_arg("start"),

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+from html import unescape
 
 from monitor.alerting.caution import CAUTION
 from monitor.alerting.frameworks import FRAMEWORKS
@@ -48,7 +49,9 @@ def test_pages_use_no_remote_resources(client):
 
 
 def test_unknown_water_body_basin_and_chart_format_are_404(client):
-    assert client.get("/water-bodies/nowhere").status_code == 404
+    r = client.get("/water-bodies/nowhere")
+    assert r.status_code == 404 and r.mimetype == "text/html"
+    assert "There is no water body 'nowhere'." in unescape(r.get_data(as_text=True))
     assert client.get("/water-bodies/quillmere/basins/nowhere/forecast.png").status_code == 404
     assert client.get("/water-bodies/quillmere/basins/west/forecast.gif").status_code == 404
 
