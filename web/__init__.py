@@ -1,4 +1,4 @@
-"""Bloomline's web app: status pages, the JSON/CSV API and subscriptions.
+"""Bloomline's web app: status pages, the JSON/CSV API, the push endpoint and subscriptions.
 
 ``create_app(config=None)`` builds the Flask app. ``config`` is a
 :class:`monitor.config.Config`, a path to the TOML file, or None to read the
@@ -10,12 +10,10 @@ write only through ``monitor`` store functions.
 from __future__ import annotations
 
 import datetime as dt
-import importlib
-import importlib.util
 import os
 from typing import Callable
 
-from flask import Flask, current_app, jsonify, render_template, request
+from flask import Flask, abort, current_app, jsonify, render_template, request
 from werkzeug.exceptions import HTTPException
 
 from monitor.alerting.caution import CAUTION
@@ -49,7 +47,6 @@ def create_app(config: Config | str | os.PathLike | None = None, *,
     """
     cfg = _resolve_config(config)
     app = Flask(__name__)
-    app.config["JSON_SORT_KEYS"] = False
     app.json.sort_keys = False
     app.extensions["bloomline"] = {
         "config": cfg,
@@ -59,12 +56,11 @@ def create_app(config: Config | str | os.PathLike | None = None, *,
 
     from web.api import api
     from web.pages import pages
+    from web.push import push_api
 
     app.register_blueprint(pages)
     app.register_blueprint(api, url_prefix="/api/v1")
-    if importlib.util.find_spec("web.push") is not None:
-        # The push endpoint is optional; if the module exists it must import cleanly.
-        app.register_blueprint(importlib.import_module("web.push").push_api)
+    app.register_blueprint(push_api)
 
     @app.context_processor
     def _globals():
@@ -91,3 +87,15 @@ def get_engine():
 
 def now() -> dt.datetime:
     return current_app.extensions["bloomline"]["clock"]()
+
+
+def water_body_or_404(water_body_id: str):
+    """The configured water body with this id, or a 404 for the request.
+
+    The app's error handler answers the 404 in the blueprint's own form: a
+    JSON error under ``/api/``, the HTML error page elsewhere.
+    """
+    try:
+        return get_config().water_body(water_body_id)
+    except KeyError:
+        abort(404, description=f"There is no water body {water_body_id!r}.")

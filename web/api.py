@@ -16,9 +16,11 @@ import io
 
 from flask import Blueprint, Response, abort, jsonify, request, url_for
 
-from monitor.store import status
 from monitor.alerting.caution import CAUTION
-from web import get_config, get_engine
+from monitor.alerting.levels import level_label
+from monitor.forecasting.quantities import QUANTITIES, UNITS
+from monitor.store import status
+from web import get_config, get_engine, water_body_or_404
 
 api = Blueprint("api", __name__)
 
@@ -75,13 +77,6 @@ def _time_arg(name: str) -> dt.datetime | None:
     return t if t.tzinfo is not None else t.replace(tzinfo=dt.timezone.utc)
 
 
-def _water_body(water_body_id: str):
-    try:
-        return get_config().water_body(water_body_id)
-    except KeyError:
-        abort(404, description=f"no water body {water_body_id!r}")
-
-
 def _basins_arg(wb) -> list[str]:
     basin = request.args.get("basin")
     ids = [b.id for b in wb.basins]
@@ -94,8 +89,8 @@ def _basins_arg(wb) -> list[str]:
 
 def _quantity_arg() -> str | None:
     q = request.args.get("quantity")
-    if q is not None and q not in status.QUANTITIES:
-        abort(400, description=f"quantity must be one of {', '.join(status.QUANTITIES)}, got {q!r}")
+    if q is not None and q not in QUANTITIES:
+        abort(400, description=f"quantity must be one of {', '.join(QUANTITIES)}, got {q!r}")
     return q
 
 
@@ -158,7 +153,7 @@ def water_bodies():
 
 @api.route("/water-bodies/<water_body_id>")
 def water_body(water_body_id: str):
-    return _json(_describe(_water_body(water_body_id)), caution=False)
+    return _json(_describe(water_body_or_404(water_body_id)), caution=False)
 
 
 @api.route("/status")
@@ -170,7 +165,7 @@ def all_status():
 
 @api.route("/water-bodies/<water_body_id>/status")
 def water_body_status(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     return _json(_status_payload(status.water_body_overview(get_engine(), get_config(), wb)))
 
 
@@ -195,8 +190,7 @@ def _forecast_response(wb, run: dict):
         day[r["statistic"]] = r["value"]
     return _json({
         "water_body_id": wb.id, "run": _run_summary(run),
-        "units": {"cyanobacteria_chlorophyll": "ug/L", "total_chlorophyll": "ug/L",
-                  "nitrogen": "ug N/L", "phosphorus": "ug P/L", "p_level_<n>": "probability 0-1"},
+        "units": {**UNITS, "p_level_<n>": "probability 0-1"},
         "levels": status.framework_info(wb)["levels"],
         "basins": {b: {q: list(days.values()) for q, days in per_basin[b].items()} for b in basins},
     })
@@ -204,7 +198,7 @@ def _forecast_response(wb, run: dict):
 
 @api.route("/water-bodies/<water_body_id>/forecast")
 def latest_forecast(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     run = status.latest_run(get_engine(), wb.id)
     if run is None:
         abort(404, description=f"no forecast has been issued for {wb.id} yet")
@@ -213,7 +207,7 @@ def latest_forecast(water_body_id: str):
 
 @api.route("/water-bodies/<water_body_id>/runs/<int:run_id>/forecast")
 def run_forecast(water_body_id: str, run_id: int):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     run = status.get_run(get_engine(), run_id)
     if run is None or run["water_body_id"] != wb.id:
         abort(404, description=f"{wb.id} has no forecast run {run_id}")
@@ -222,7 +216,7 @@ def run_forecast(water_body_id: str, run_id: int):
 
 @api.route("/water-bodies/<water_body_id>/runs")
 def runs(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     limit = request.args.get("limit", type=int)
     if limit is not None and limit < 1:
         abort(400, description="limit must be a positive integer")
@@ -240,7 +234,7 @@ HISTORY_COLUMNS = ["run_id", "analysis_utc", "status", "basin_id", "quantity", *
 
 @api.route("/water-bodies/<water_body_id>/history")
 def history(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     fmt = _format()
     quantity = _quantity_arg() or status.QUANTITY
     start, end = _time_arg("start"), _time_arg("end")
@@ -259,7 +253,7 @@ EVENT_COLUMNS = ["id", "water_body_id", "basin_id", "time_utc", "from_level", "t
 
 @api.route("/water-bodies/<water_body_id>/alert-events")
 def alert_events(water_body_id: str):
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     fmt = _format()
     basins = _basins_arg(wb)
     events = [e for e in status.list_alert_events(get_engine(), wb.id, start=_time_arg("start"),
@@ -268,6 +262,6 @@ def alert_events(water_body_id: str):
     if fmt == "csv":
         return _csv(events, EVENT_COLUMNS, f"{wb.id}-alert-events.csv")
     for e in events:
-        e["from_level_name"] = status.level_info(wb, e["from_level"])["name"]
-        e["to_level_name"] = status.level_info(wb, e["to_level"])["name"]
+        e["from_level_name"] = level_label(wb, e["from_level"])
+        e["to_level_name"] = level_label(wb, e["to_level"])
     return _json({"water_body_id": wb.id, "events": events})

@@ -6,22 +6,15 @@ import datetime as dt
 
 from flask import Blueprint, Response, abort, render_template, request
 
-from monitor.alerting import notify, subscriptions
+from monitor.alerting import outbox, subscriptions
 from monitor.store import status
-from web import get_config, get_engine, now
+from web import get_config, get_engine, now, water_body_or_404
 from web.plots import FORMATS, fan_chart
 
 pages = Blueprint("pages", __name__)
 
 #: How many days of history the water-body page plots before the analysis.
 HISTORY_DAYS = 30
-
-
-def _water_body(water_body_id: str):
-    try:
-        return get_config().water_body(water_body_id)
-    except KeyError:
-        abort(404, description=f"There is no water body {water_body_id!r}.")
 
 
 def _basin(wb, basin_id: str):
@@ -69,7 +62,7 @@ def index():
 @pages.route("/water-bodies/<water_body_id>")
 def water_body(water_body_id: str):
     cfg, engine = get_config(), get_engine()
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     overview = status.water_body_overview(engine, cfg, wb)
     run = overview["latest_run"]
     tables = {}
@@ -86,7 +79,7 @@ def forecast_plot(water_body_id: str, basin_id: str, fmt: str):
     if fmt not in FORMATS:
         abort(404, description=f"Charts come as {' or '.join(FORMATS)}.")
     cfg, engine = get_config(), get_engine()
-    wb = _water_body(water_body_id)
+    wb = water_body_or_404(water_body_id)
     basin = _basin(wb, basin_id)
     run_id = request.args.get("run", type=int)
     run = status.get_run(engine, run_id) if run_id else status.latest_run(engine, wb.id)
@@ -129,7 +122,7 @@ def subscribe():
                 error = str(exc) if isinstance(exc, subscriptions.SubscriptionError) else "Choose an alert level."
             else:
                 if not sub.active:
-                    notify.enqueue_confirmation(engine, wb, sub, base_url=cfg.service.base_url, now=now())
+                    outbox.enqueue_confirmation(engine, wb, sub, base_url=cfg.service.base_url, now=now())
                 return render_template("subscribe_done.html", wb=wb, sub=sub), 201
     return render_template("subscribe.html", form=form, error=error), (400 if error else 200)
 
@@ -139,7 +132,7 @@ def _token_page(token: str, action: str):
     sub = subscriptions.by_token(engine, token)
     if sub is None:
         abort(404, description="This link is not valid (it may be from an old email).")
-    wb = _water_body(sub.water_body_id)
+    wb = water_body_or_404(sub.water_body_id)
     done = False
     if request.method == "POST":
         sub = (subscriptions.confirm if action == "confirm" else subscriptions.unsubscribe)(engine, token)

@@ -21,9 +21,10 @@ ch. 5). A cycle whose run has no forecast for the basin cannot count as
 quiet: it may raise on the observation, but never advances the clearing.
 
 :func:`evaluate_run` applies the rule to one stored forecast run, writes
-``alert_status`` and ``alert_events`` and queues the emails in one
-transaction. Evaluating a run that is not newer than the last one
-evaluated for the basin changes nothing, so re-running a cycle is safe.
+``alert_status`` and ``alert_events`` and queues the emails
+(:mod:`monitor.alerting.outbox`) in one transaction. Evaluating a run that
+is not newer than the last one evaluated for the basin changes nothing, so
+re-running a cycle is safe.
 """
 
 from __future__ import annotations
@@ -37,7 +38,8 @@ from sqlalchemy import and_, select, update
 from sqlalchemy.engine import Engine
 
 from monitor.alerting.frameworks import AlertLevel
-from monitor.alerting.notify import enqueue_event, level_label
+from monitor.alerting.levels import level_label
+from monitor.alerting.outbox import enqueue_event
 from monitor.store.schema import alert_events, alert_status, forecast_runs, forecast_values
 
 QUANTITY = "cyanobacteria_chlorophyll"

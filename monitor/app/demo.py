@@ -25,6 +25,7 @@ from monitor.alerting.caution import CAUTION
 from monitor.config import Config, load_config
 from monitor.alerting.frameworks import FRAMEWORKS
 from monitor.ingest.feeds.csv_folder import feed_files
+from monitor.alerting.levels import level_label
 from monitor.store.readings import ingest_summary
 from monitor.app.service import Service
 from monitor.timeutil import UTC, as_utc
@@ -155,7 +156,7 @@ def build_summary(service: Service, config: Config, results, days, statuses, por
             st = status.get((wb.id, b.id))
             level = int(st.level) if st else 0
             basins.append({"id": b.id, "name": b.name, "level": level,
-                           "level_name": _level_name(wb, level),
+                           "level_name": level_label(wb, level),
                            "since_utc": st.since_utc.isoformat() if st else None})
         bodies.append({"id": wb.id, "name": wb.name, "use": wb.use, "framework": wb.alerts.framework,
                        "framework_title": fw.title if fw else "custom levels",
@@ -167,7 +168,7 @@ def build_summary(service: Service, config: Config, results, days, statuses, por
         wb = config.water_body(e.water_body_id)
         changes.append({"water_body": e.water_body_id, "basin": e.basin_id, "time_utc": e.time_utc.isoformat(),
                         "from_level": int(e.from_level), "to_level": int(e.to_level),
-                        "level_name": _level_name(wb, int(e.to_level)),
+                        "level_name": level_label(wb, int(e.to_level)),
                         "probability": e.probability, "observed_ugL": e.observed_ugL})
     return {
         "workdir": str(config.path.parent) if config.path else None,
@@ -186,12 +187,6 @@ def build_summary(service: Service, config: Config, results, days, statuses, por
         "status_page": f"http://127.0.0.1:{port}/",
         "caution": CAUTION,
     }
-
-
-def _level_name(wb, level: int) -> str:
-    if level == 0:
-        return "no alert level forecast"
-    return wb.alerts.levels[level - 1].name
 
 
 def print_summary(s: dict) -> None:

@@ -37,6 +37,7 @@ from monitor.forecasting.baselines import baseline_members
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history
 from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
+from monitor.forecasting.quantities import QUANTITIES
 from monitor.store.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import from_epoch_days, to_epoch_days
 
@@ -45,7 +46,6 @@ from monitor.timeutil import from_epoch_days, to_epoch_days
 #: for driver ensembles).
 DRIVER_SCENARIOS_C = (-1.5, 0.0, 1.5)
 
-QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll", "nitrogen", "phosphorus")
 
 
 # --------------------------------------------------------------------------
@@ -237,15 +237,15 @@ def _forecast(states, params, spec, inputs: CycleInputs) -> dict:
     traj = integrate.simulate(states, spec, drivers, t0, save, params=params or None)
     chl = layout.chlorophyll(traj)
     cyano = [g for g, grp in enumerate(spec.groups) if grp.is_cyanobacteria]
-    quantities = {
+    series = {
         "cyanobacteria_chlorophyll": chl[..., cyano].sum(axis=-1),
         "total_chlorophyll": chl.sum(axis=-1),
         "nitrogen": layout.nitrogen(traj),
         "phosphorus": layout.phosphorus(traj),
     }
-    return {q: daily_statistics(save, v, t0, inputs.horizon_days,
-                                inputs.thresholds_ugL if q == "cyanobacteria_chlorophyll" else ())
-            for q, v in quantities.items()}
+    return {q: daily_statistics(save, series[q], t0, inputs.horizon_days,
+                                inputs.thresholds_ugL if q == alerts.QUANTITY else ())
+            for q in QUANTITIES}
 
 
 def _jsonable(obj):
@@ -330,8 +330,3 @@ def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.dat
     return {"water_body": wb.id, "analysis_utc": analysis.isoformat(), "status": outputs.status,
             "message": message, "run_id": run_id, "events": events}
 
-
-def run_cycle(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-              *, season_start: dt.datetime | None = None, now: dt.datetime | None = None) -> dict:
-    """Gather, compute and record one cycle of one water body."""
-    return record(engine, config, compute(gather(engine, config, wb, analysis, season_start=season_start)), now=now)

@@ -18,7 +18,6 @@ from sqlalchemy.engine import Engine
 from monitor.store.schema import driver_forecasts, ingest_batches, readings, rejected_rows
 from monitor.timeutil import aware_utc, utc_from_db, utc_series_from_db
 
-READING_COLUMNS = ["station_id", "variable", "time_utc", "value", "qc_flag", "source"]
 
 
 def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,

@@ -15,11 +15,11 @@ from typing import Iterable
 from sqlalchemy import and_, select
 from sqlalchemy.engine import Engine
 
-from monitor.alerting.rules import QUANTITY, exceedance_maxima
 from monitor.alerting.frameworks import FRAMEWORKS
+from monitor.alerting.levels import level_info
+from monitor.alerting.rules import QUANTITY, exceedance_maxima
 from monitor.store.schema import alert_events, alert_status, forecast_runs, forecast_values, readings
 
-QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll", "nitrogen", "phosphorus")
 STATISTICS = ("mean", "q05", "q25", "q50", "q75", "q95")
 #: QC flags of readings shown as observations: 1 pass (QARTOD; "not evaluated" 2 is not shown).
 MAX_FLAG = 1
@@ -180,14 +180,6 @@ def list_alert_events(engine: Engine, water_body_id: str | None = None, *, basin
         return [dict(id=int(r.id), water_body_id=r.water_body_id, basin_id=r.basin_id, time_utc=r.time_utc,
                      from_level=int(r.from_level), to_level=int(r.to_level), probability=r.probability,
                      observed_ugL=r.observed_ugL, reason=r.reason) for r in conn.execute(q)]
-
-
-def level_info(water_body, level: int) -> dict:
-    """Number, name, threshold and meaning of a level; level 0 is "no alert level forecast"."""
-    if level <= 0:
-        return {"number": 0, "name": "No alert level forecast", "chlorophyll_ugL": None, "meaning": ""}
-    lv = water_body.alerts.levels[min(level, len(water_body.alerts.levels)) - 1]
-    return {"number": lv.number, "name": lv.name, "chlorophyll_ugL": lv.chlorophyll_ugL, "meaning": lv.meaning}
 
 
 def framework_info(water_body) -> dict:

@@ -11,7 +11,6 @@ chlorophyll-a with cyanobacterial dominance (REFERENCES.md [verified]).
 from dataclasses import replace
 
 import numpy as np
-import pytest
 
 from assimilation import integrate
 from assimilation.parameters import default_spec

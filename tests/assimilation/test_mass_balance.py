@@ -6,12 +6,11 @@ exactly the fixed N less what is denitrified, settles or is not recycled.
 from dataclasses import replace
 
 import numpy as np
-import pytest
 
 from assimilation import budget, integrate, model
 from assimilation.forcing import forcing_at
 from assimilation.parameters import default_spec
-from assimilation.spec import Basin, Drivers, Network, StateLayout
+from assimilation.spec import Drivers, Network, StateLayout
 from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 
 

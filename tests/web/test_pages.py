@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+from html import unescape
 
 from monitor.alerting.caution import CAUTION
 from monitor.alerting.frameworks import FRAMEWORKS
@@ -16,7 +17,7 @@ def test_status_page_names_framework_levels_and_carries_the_caution(client):
     assert FRAMEWORKS["who-2003-recreation"].title in html
     assert "West Bay" in html and "East Bay" in html
     # no basin has a level yet: it says so, and never calls the water safe
-    assert "No alert level forecast" in html
+    assert "no alert level forecast" in html
     assert "safe" not in html.lower().replace("safety clearance", "")
 
 
@@ -48,7 +49,9 @@ def test_pages_use_no_remote_resources(client):
 
 
 def test_unknown_water_body_basin_and_chart_format_are_404(client):
-    assert client.get("/water-bodies/nowhere").status_code == 404
+    r = client.get("/water-bodies/nowhere")
+    assert r.status_code == 404 and r.mimetype == "text/html"
+    assert "There is no water body 'nowhere'." in unescape(r.get_data(as_text=True))
     assert client.get("/water-bodies/quillmere/basins/nowhere/forecast.png").status_code == 404
     assert client.get("/water-bodies/quillmere/basins/west/forecast.gif").status_code == 404
 
@@ -62,6 +65,7 @@ def test_subscribe_confirm_and_unsubscribe_through_the_pages_and_the_mailbox(app
     import email.policy
 
     from monitor.alerting import notify, subscriptions
+    from monitor.alerting.transports import transport_from_config
 
     r = client.post("/subscribe", data={"name": "Fen Quill", "email": "fen@quillmere.example",
                                         "water_body": "quillmere", "min_level": "1"})
@@ -69,7 +73,7 @@ def test_subscribe_confirm_and_unsubscribe_through_the_pages_and_the_mailbox(app
     assert subscriptions.subscribers_for(engine, "quillmere", 2) == []  # not before confirming
 
     clock = app.extensions["bloomline"]["clock"]
-    assert notify.send_due(engine, notify.transport_from_config(config), clock()).sent == 1
+    assert notify.send_due(engine, transport_from_config(config), clock()).sent == 1
     (eml,) = (tmp_path / "mailbox").glob("*.eml")
     msg = email.message_from_bytes(eml.read_bytes(), policy=email.policy.default)
     assert msg["To"] == "fen@quillmere.example" and "confirm" in msg["Subject"]

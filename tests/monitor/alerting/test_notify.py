@@ -1,4 +1,5 @@
-"""Outbox, transports and retries: the mailbox folder and a real local SMTP server (aiosmtpd)."""
+"""Sending the outbox with retries through both transports: the mailbox folder and a real local
+SMTP server (aiosmtpd)."""
 
 from __future__ import annotations
 
@@ -15,18 +16,9 @@ from sqlalchemy import insert, select
 from monitor.alerting.caution import CAUTION
 from monitor.config import SmtpConfig, parse_config
 from monitor.store.db import open_store
-from monitor.alerting.notify import (
-    MailboxTransport,
-    SmtpTransport,
-    build_message,
-    enqueue,
-    outbox_counts,
-    render_alert,
-    requeue_dead,
-    retry_delay,
-    send_due,
-    transport_from_config,
-)
+from monitor.alerting.notify import LEASE, build_message, retry_delay, send_due
+from monitor.alerting.outbox import enqueue, outbox_counts, requeue_dead
+from monitor.alerting.transports import MailboxTransport, SmtpTransport, transport_from_config
 from monitor.store.schema import outbox, water_bodies
 
 UTC = dt.timezone.utc
@@ -120,30 +112,7 @@ class Failing:
         raise ConnectionRefusedError(111, "Connection refused")
 
 
-# ---------------------------------------------------------------- rendering
-
-
-def test_alert_email_names_level_framework_probability_and_carries_the_caution(tmp_path):
-    wb = make_config(tmp_path).water_body("hollin")
-    event = dict(water_body_id="hollin", basin_id="arm", time_utc=T0, from_level=0, to_level=1,
-                 probability=0.72, observed_ugL=0.6, reason="")
-    subject, body = render_alert(wb, event, base_url="http://bloomline.test")
-    # WHO (1999) drinking-water Alert Level 1 at 1 µg/L chlorophyll-a (Chorus & Bartram 1999) [verified]
-    assert subject == "Bloomline alert: Reed Arm, Hollin Mere raised to Alert Level 1 (1 µg/L)"
-    assert "72 %" in body and "0.60 µg/L" in body
-    assert "WHO alert levels for drinking-water sources (1999)" in body
-    assert CAUTION in body
-    assert "http://bloomline.test/water-bodies/hollin" in body
-
-
-def test_cleared_email_says_no_alert_level_forecast_and_never_safe(tmp_path):
-    wb = make_config(tmp_path).water_body("hollin")
-    event = dict(water_body_id="hollin", basin_id="arm", time_utc=T0, from_level=1, to_level=0,
-                 probability=0.1, observed_ugL=None, reason="")
-    subject, body = render_alert(wb, event, base_url="http://bloomline.test")
-    assert "cleared" in subject and "no alert level forecast" in subject
-    assert "not a safety clearance" in body and CAUTION in body
-    assert "is safe" not in body.lower()
+# ---------------------------------------------------------------- messages
 
 
 def test_message_id_is_stable_for_an_outbox_row(engine):
@@ -263,8 +232,6 @@ def test_a_second_sender_running_at_the_same_time_skips_a_claimed_message(engine
 
 
 def test_a_crash_while_sending_leaves_the_message_pending_for_after_the_lease(engine):
-    from monitor.alerting.notify import LEASE
-
     queue(engine)
 
     class ProcessDied(BaseException):

@@ -9,10 +9,10 @@ from pathlib import Path
 
 from apscheduler.schedulers.background import BackgroundScheduler
 
-from monitor.config import load_config
-from monitor.alerting.notify import MailboxTransport
+from monitor.alerting.transports import MailboxTransport
 from monitor.app.scheduler import build_scheduler
 from monitor.app.service import Service
+from monitor.config import load_config
 
 SAMPLE = Path(__file__).resolve().parents[3] / "sample_feeds"
 

@@ -9,7 +9,7 @@ from pathlib import Path
 
 import pytest
 
-from monitor.alerting.notify import MailboxTransport
+from monitor.alerting.transports import MailboxTransport
 from monitor.app.service import Service
 from monitor.config import load_config
 from monitor.forecasting import cycle

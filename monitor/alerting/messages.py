@@ -1,0 +1,122 @@
+"""The text of Bloomline's emails: an alert change and a sign-up confirmation.
+
+Pure functions from a water body's config, an alert event and a
+subscriber to a subject and a plain-text body; every email names the alert
+framework with its source and carries the caution.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from monitor.alerting.caution import CAUTION
+from monitor.alerting.frameworks import FRAMEWORKS
+from monitor.alerting.levels import level_label
+from monitor.alerting.subscriptions import Subscriber
+
+
+def _label(water_body, level: int) -> str:
+    """A level's name with its threshold, as emails give it: 'Alert Level 1 (1 µg/L)'."""
+    return level_label(water_body, level, with_threshold=True)
+
+
+def framework_line(water_body) -> str:
+    """The framework in use, with its source, in one sentence."""
+    fw = FRAMEWORKS.get(water_body.alerts.framework)
+    if fw is None:
+        return f"Alert levels: {water_body.alerts.framework} (levels set in this water body's configuration)."
+    return f"Alert levels: {fw.title}. Source: {fw.source}"
+
+
+def basin_name(water_body, basin_id: str) -> str:
+    for b in water_body.basins:
+        if b.id == basin_id:
+            return b.name
+    return basin_id
+
+
+def _fmt_time(t: dt.datetime) -> str:
+    return t.astimezone(dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+
+
+def _why(water_body, event: dict) -> str:
+    parts = []
+    p = event.get("probability")
+    level = max(event["to_level"], event["from_level"])  # a lowering reports the level it left
+    if p is not None:
+        parts.append(f"forecast probability of reaching {_label(water_body, level)} within "
+                     f"{water_body.alerts.horizon_days} days: {100 * p:.0f} % (a warning is raised at "
+                     f"{100 * water_body.alerts.warn_probability:.0f} %)")
+    else:
+        parts.append("no forecast probability was available for this cycle")
+    obs = event.get("observed_ugL")
+    if obs is not None:
+        parts.append(f"latest observed daily mean of cyanobacterial chlorophyll-a (phycocyanin sensor): {obs:.2f} µg/L")
+    else:
+        parts.append("no QC-passed observation of cyanobacterial chlorophyll-a in the latest day")
+    return "; ".join(parts) + "."
+
+
+def render_alert(water_body, event: dict, *, base_url: str, subscriber: Subscriber | None = None) -> tuple[str, str]:
+    """Subject and plain-text body of the email for one alert change.
+
+    ``event`` is a dict as returned by :func:`monitor.alerting.rules.evaluate_run`
+    (water_body_id, basin_id, time_utc, from_level, to_level, probability,
+    observed_ugL, reason). A lowering to level 0 is the "cleared" email; it
+    says that no alert level is forecast, never that the water is safe.
+    """
+    basin = basin_name(water_body, event["basin_id"])
+    where = f"{basin}, {water_body.name}"
+    old, new = event["from_level"], event["to_level"]
+    page = f"{base_url.rstrip('/')}/water-bodies/{water_body.id}"
+    if new > old:
+        subject = f"Bloomline alert: {where} raised to {_label(water_body, new)}"
+        lv = water_body.alerts.levels[new - 1]
+        first = (f"The alert level for {where} has been raised from {_label(water_body, old)} "
+                 f"to {_label(water_body, new)}"
+                 + (f": {lv.meaning}." if lv.meaning else "."))
+    elif new == 0:
+        subject = f"Bloomline: {where} cleared, no alert level forecast"
+        first = (f"The alert for {where} has been cleared: {_label(water_body, old)} is no longer "
+                 f"forecast for the next {water_body.alerts.horizon_days} days and the latest observation "
+                 "is below it. No alert level is forecast. This is not a safety clearance: check the "
+                 "authority's advisories before using the water.")
+    else:
+        subject = f"Bloomline: {where} lowered to {_label(water_body, new)}"
+        first = (f"The alert level for {where} has been lowered from {_label(water_body, old)} "
+                 f"to {_label(water_body, new)}. {_label(water_body, new)} still applies.")
+    lines = [
+        first,
+        "",
+        "Why: " + _why(water_body, event),
+        f"Analysis time: {_fmt_time(event['time_utc'])}",
+        framework_line(water_body),
+        "",
+        f"Forecast and history: {page}",
+        "",
+        CAUTION,
+    ]
+    if subscriber is not None:
+        lines += [
+            "",
+            f"You receive this because {subscriber.email} is subscribed to alerts for {water_body.name} "
+            f"at {_label(water_body, subscriber.min_level)} and above.",
+            f"Unsubscribe: {base_url.rstrip('/')}/unsubscribe/{subscriber.token}",
+        ]
+    return subject, "\n".join(lines) + "\n"
+
+
+def render_confirmation(water_body, subscriber: Subscriber, *, base_url: str) -> tuple[str, str]:
+    """Subject and body of the email asking a web sign-up to confirm its address."""
+    subject = f"Bloomline: confirm your alert subscription for {water_body.name}"
+    body = "\n".join([
+        f"Someone, probably you, asked to receive Bloomline alert emails for {water_body.name} "
+        f"at {_label(water_body, subscriber.min_level)} and above.",
+        "",
+        f"Confirm: {base_url.rstrip('/')}/subscribe/confirm/{subscriber.token}",
+        "",
+        "If you did not ask for this, ignore this email: nothing is sent until the link is followed.",
+        "",
+        CAUTION,
+    ]) + "\n"
+    return subject, body
