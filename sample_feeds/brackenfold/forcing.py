@@ -24,7 +24,14 @@ OVERTURN_BELOW_C = 14.5            # [°C] after mid-August, cooler than this en
 ANOXIA_ONSET_D = 8.0               # [d] e-folding time of deep-water anoxia after a mixing
 EXCHANGE_MIXED_PER_D = 2.5         # [1/d] surface–deep exchange while mixed
 EXCHANGE_STRATIFIED_PER_D = 0.02   # [1/d] … and while stratified
+OVERTURN_AFTER_DOY = 227           # mid-August: from then on cooling can end the stratification
 MIN_STORM_SPACING_D = 14           # [d]
+WIND_MEAN_MS = 3.2                 # [m/s] median daily wind on calm days (invented)
+STORM_WIND_MS = 8.0                # [m/s] extra wind on a storm day per unit magnitude
+STORM_COOLING_C = 3.0              # [°C] drop of the equilibrium temperature on a storm day per unit magnitude
+STORM_TURBIDITY_PER_M = 0.8        # [1/m] extra attenuation from stirred-up sediment per unit magnitude …
+TURBIDITY_DECAY_D = 2.0            # [d] … settling out with this e-folding time
+SW_WARMING_C_PER_WM2 = 0.012       # [°C per W/m²] sunny days warm the water above its equilibrium
 
 
 def extraterrestrial_daily_mean(doy: np.ndarray) -> np.ndarray:
@@ -91,11 +98,12 @@ def make_forcing(rng: np.random.Generator, season: Season) -> tuple[pd.DataFrame
         cloud[d] = 1.0
         after[d + 1:d + 4] += mag * np.array([0.6, 0.3, 0.1])[: len(after[d + 1:d + 4])]
     shortwave = extraterrestrial_daily_mean(doy) * CLEAR_TRANSMISSIVITY * (1.0 - 0.75 * cloud ** 3.4)
-    wind = 3.2 * np.exp(ar1(rng, n, 0.5, 0.3)) + 8.0 * storm + 3.0 * after
+    wind = WIND_MEAN_MS * np.exp(ar1(rng, n, 0.5, 0.3)) + STORM_WIND_MS * storm + 3.0 * after
 
     clear_sw = extraterrestrial_daily_mean(doy) * CLEAR_TRANSMISSIVITY
     t_eq = (EQ_TEMP_MEAN_C + EQ_TEMP_AMPLITUDE_C * np.cos(2 * np.pi * (doy - EQ_TEMP_PEAK_DOY) / 365.0)
-            + 0.012 * (shortwave - 0.6 * clear_sw) + ar1(rng, n, 0.8, 1.6) - 3.0 * storm - 2.0 * after)
+            + SW_WARMING_C_PER_WM2 * (shortwave - 0.6 * clear_sw) + ar1(rng, n, 0.8, 1.6)
+            - STORM_COOLING_C * (storm + 2.0 / 3.0 * after))
     water = np.empty(n)
     decay = np.exp(-1.0 / WATER_RESPONSE_D)
     # the season starts from the climatological equilibrium, half a degree cooler (spring lags)
@@ -106,10 +114,10 @@ def make_forcing(rng: np.random.Generator, season: Season) -> tuple[pd.DataFrame
 
     turbidity = np.zeros(n)
     for d, mag in storms:
-        turbidity[d:] += 0.8 * mag * np.exp(-np.arange(n - d) / 2.0)
+        turbidity[d:] += STORM_TURBIDITY_PER_M * mag * np.exp(-np.arange(n - d) / TURBIDITY_DECAY_D)
 
     onset = int(np.argmax(water >= STRATIFY_ABOVE_C)) if (water >= STRATIFY_ABOVE_C).any() else n
-    late = (doy >= 227) & (water < OVERTURN_BELOW_C)
+    late = (doy >= OVERTURN_AFTER_DOY) & (water < OVERTURN_BELOW_C)
     overturn = int(np.argmax(late)) if late.any() else n
     mixed_by_storm = np.zeros(n, dtype=bool)
     for d, _ in storms:
