@@ -15,7 +15,7 @@ State (surface layer unless said otherwise):
 Chlorophyll-a is ``chl = Q · A``: the ratio falls with light and rises with
 temperature and nutrient sufficiency, so chlorophyll and biomass part ways.
 The equations and parameters (all invented, in plausible ranges) are listed
-in README.md next to this package. Integrated one local day at a time with
+in README.md in this folder. Integrated one local day at a time with
 scipy's ``solve_ivp`` (LSODA), the day's forcing held constant; the state is
 kept hourly. It does not import Bloomline.
 """
