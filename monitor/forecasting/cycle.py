@@ -70,6 +70,8 @@ class CycleInputs:
     window_days: float = 1.0
     basin_ids: tuple[str, ...] = ()
     history: ObservedHistory = field(default_factory=ObservedHistory)
+    #: basin id of each chlorophyll sensor whose gain the filter estimates (gain columns in order)
+    sensor_basins: tuple[str, ...] = ()
 
 
 def station_readings(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
@@ -173,7 +175,8 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
-        history=observed_history(engine, config, wb, analysis))
+        history=observed_history(engine, config, wb, analysis),
+        sensor_basins=tuple(config.station(s).basin for s in chlorophyll_sensors(config, wb)))
 
 
 # --------------------------------------------------------------------------
@@ -194,6 +197,8 @@ class CycleOutputs:
     baselines: list = field(default_factory=list)
     #: (basin, quantity) -> the observed variable that verifies it
     verified_by: dict = field(default_factory=dict)
+    #: basin -> each member's mean estimated gain of the basin's chlorophyll sensors (M,)
+    sensor_gain: dict = field(default_factory=dict)
 
 
 def compute(inputs: CycleInputs) -> CycleOutputs:
@@ -212,15 +217,30 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
     if result.status == "failed":
         return CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed", result.message, None,
                             _jsonable(result.diagnostics), {}, inputs.basin_ids)
-    states, params, _gains = split(result.checkpoint, spec)
+    states, params, gains = split(result.checkpoint, spec)
     forecasts = _forecast(states, params, spec, inputs)
     verified_by = {(b, q): s.variable for b in inputs.basin_ids for q in OBSERVED_BY
                    if (s := inputs.history.get(b, q)) is not None}
+    sensor_gain = _basin_sensor_gains(gains, inputs.sensor_basins, inputs.basin_ids)
     issued_baselines = list(baseline_members(inputs.history, inputs.basin_ids, inputs.analysis_d,
                                              inputs.horizon_days))
     return CycleOutputs(inputs.water_body_id, inputs.analysis_d, result.status, result.message,
                         result.checkpoint.to_bytes(), _jsonable(result.diagnostics), forecasts, inputs.basin_ids,
-                        issued_baselines, verified_by)
+                        issued_baselines, verified_by, sensor_gain)
+
+
+def _basin_sensor_gains(gains: np.ndarray, sensor_basins: tuple[str, ...], basin_ids) -> dict:
+    """Each member's mean gain of a basin's chlorophyll sensors: basin -> (M,) [-].
+
+    The observation operator of a fluorometer is gain · total chlorophyll-a
+    (:mod:`assimilation.observe`), so a forecast verified against
+    fluorescence is multiplied by the member's estimated gain.
+    """
+    if gains is None or np.size(gains) == 0 or not sensor_basins:
+        return {}
+    gains = np.asarray(gains, dtype=float).reshape(-1, len(sensor_basins))
+    return {b: gains[:, [i for i, s in enumerate(sensor_basins) if s == b]].mean(axis=1)
+            for b in basin_ids if b in sensor_basins}
 
 
 def _forecast(states, params, spec, inputs: CycleInputs) -> dict:
@@ -285,8 +305,12 @@ def member_rows(outputs: CycleOutputs):
     (where an observed series verifies it) and of the baselines issued with it."""
     for (basin, quantity), variable in outputs.verified_by.items():
         fc = outputs.forecasts.get(quantity)
-        if fc is not None:
-            yield basin, quantity, "bloomline", variable, fc.members[:, :, outputs.basin_ids.index(basin)]
+        if fc is None:
+            continue
+        members = fc.members[:, :, outputs.basin_ids.index(basin)]
+        if variable == "chlorophyll_fluorescence" and basin in outputs.sensor_gain:
+            members = members * outputs.sensor_gain[basin][None, :]  # what the sensor will read
+        yield basin, quantity, "bloomline", variable, members
     yield from outputs.baselines
 
 

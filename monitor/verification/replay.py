@@ -131,6 +131,7 @@ def replay(config: Config, live: Engine, days: list[dt.datetime], *, only: list[
     """
     bodies = [wb for wb in config.water_bodies if only is None or wb.id in only]
     folder = Path(folder) if folder is not None else Path(tempfile.mkdtemp(prefix="bloomline-replay-"))
+    folder.mkdir(parents=True, exist_ok=True)
     scratch = scratch_copy(live, config, bodies, folder)
     start = season_start or (days[0] - dt.timedelta(days=1))
     service = Service(config, engine=scratch, transport=DiscardTransport(), clock=lambda: days[0])
