@@ -25,20 +25,18 @@ Forecasters
 * :func:`climatology`: values within ±``CLIMATOLOGY_HALF_WINDOW_D`` days of
   the valid day's calendar date in previous years (a day-of-year window).
 * :func:`ar1_forecast`: a first-order autoregression of log chlorophyll-a,
-  with water temperature as regressor when given (statsmodels ``SARIMAX``,
-  order (1, 0, 0) with a constant; Box, Jenkins, Reinsel and Ljung 2015,
-  *Time Series Analysis*, 5th ed., Wiley), whose Kalman filter skips the
-  missing days (Durbin and Koopman 2012, *Time Series Analysis by State
-  Space Methods*, 2nd ed., OUP).
+  with water temperature as regressor when given, fitted by conditional
+  least squares (statsmodels ``OLS``) on the pairs of consecutive observed
+  days (Box, Jenkins, Reinsel and Ljung 2015, *Time Series Analysis*, 5th
+  ed., Wiley, ch. 7; Hamilton 1994, *Time Series Analysis*, Princeton, ch. 8).
 """
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
 from scipy import stats
-from statsmodels.tsa.statespace.sarimax import SARIMAX
+from statsmodels.regression.linear_model import OLS
 
 from assimilation import transform
 from assimilation.scores import LOG_FLOOR_UGL
@@ -54,8 +52,9 @@ CLIMATOLOGY_HALF_WINDOW_D = 15
 MIN_CLIMATOLOGY_VALUES = 10
 """Values needed in the day-of-year window for a climatological forecast (Bloomline's choice)."""
 MIN_AR_OBSERVATIONS = 30
-"""Observed days needed to fit the autoregression (three or four parameters); with
-fewer it falls back to the persistence ensemble (Bloomline's choice)."""
+"""Pairs of consecutive observed days needed to fit the autoregression (two or three
+coefficients and the residual variance); with fewer it falls back to the persistence
+ensemble (Bloomline's choice)."""
 
 
 @dataclass(frozen=True)
@@ -69,8 +68,6 @@ class BaselineForecast:
     valid_day_d: np.ndarray
     members_ugL: np.ndarray
     note: str = ""
-    params: np.ndarray | None = None
-    """The fitted parameters of a model-based forecaster (for re-use by a later origin)."""
 
 
 def _positions(m: int) -> np.ndarray:
@@ -226,30 +223,39 @@ def _fill_gaps(values):
 
 
 def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, temperature_C=None,
-                 future_temperature_C=None, members: int = MEMBERS, params=None,
+                 future_temperature_C=None, members: int = MEMBERS,
                  min_observations: int = MIN_AR_OBSERVATIONS, floor_ugL: float = LOG_FLOOR_UGL) -> BaselineForecast:
     """AR(1) forecast of log chlorophyll-a, members at fixed normal quantiles [µg/L].
 
-    The model, fitted by maximum likelihood on the log series from its first
-    observed day to the origin (missing days left missing):
-    ``SARIMAX(order=(1, 0, 0), trend="c")``, with ``exog`` the water
-    temperature [°C] when ``temperature_C`` (T,) is given (regression with
-    AR(1) errors; gaps in the temperature history filled by linear
-    interpolation in time). ``future_temperature_C`` (H,) [°C] is the
-    temperature for the leads (e.g. a driver forecast); without it the last
-    observed temperature is held. Lead h: members
-    ``exp(mean_h + sd_h·Φ⁻¹((j − 0.5)/M))`` from the forecast mean and
-    variance. With fewer than ``min_observations`` observed days, or when
-    the fit raises or gives a non-finite forecast, the persistence ensemble
-    is returned instead (``method`` says which ran, ``note`` why). Warnings
-    from statsmodels are not raised but recorded in ``note``; a fit it
-    reports as not converged is kept (its L-BFGS line search can stop
-    close to the optimum of this small likelihood), so read the note.
-    ``params``: parameters fitted at an earlier origin (``.params`` of its
-    result); the series is then only filtered with them, not refitted (a
-    hindcast refits weekly: the parameters still come only from data before
-    the origin). Parameters of the other model form (with or without the
-    regressor) are ignored and the model is fitted.
+    The model, for z = ln chlorophyll-a (values below ``floor_ugL`` counting as
+    the floor) and T the water temperature [°C] when ``temperature_C`` (T,)
+    is given (else no β term)::
+
+        z_t = c + φ·z_{t−1} + β·T_t + ε_t,   ε_t ~ N(0, σ²)
+
+    is fitted by conditional least squares: statsmodels ``OLS`` of z_t on
+    (1, z_{t−1}, T_t) over the pairs of consecutive days before the origin
+    with both z_t and z_{t−1} observed (Box, Jenkins, Reinsel and Ljung 2015,
+    *Time Series Analysis*, 5th ed., Wiley, ch. 7; Hamilton 1994, *Time
+    Series Analysis*, Princeton, ch. 8); gaps in the temperature history are
+    filled by linear interpolation in time (ends held). σ² is the OLS
+    residual variance (``scale``, residual sum of squares over n − k).
+
+    The forecast starts from the last observed value z_L, g days before the
+    origin, and runs the recursion m_s = c + φ·m_{s−1} + β·T_s over the g
+    gap days and the leads; the temperature is held at its last observed
+    value, except at the leads when ``future_temperature_C`` (H,) [°C] is
+    given (e.g. a driver forecast). Lead h is k = g + h steps from z_L:
+    variance v_h = σ²·Σ_{i=0}^{k−1} φ^{2i}, members
+    ``exp(m_h + sqrt(v_h)·Φ⁻¹((j − 0.5)/M))``. The variance ignores the
+    uncertainty of the fitted coefficients, so the spread is somewhat too
+    narrow on a short history.
+
+    Falls back to the persistence ensemble (``method`` says which ran,
+    ``note`` why) with fewer than ``min_observations`` pairs of consecutive
+    observed days, a singular design (e.g. a constant temperature), a
+    non-stationary fit (|φ| ≥ 1, whose forecast variance grows without
+    bound), or a non-finite forecast.
     """
     grid, temp, valid = _history(days_d, chl_ugL, origin_d, horizon_days, extra=temperature_C)
     _check_members(members)
@@ -258,11 +264,8 @@ def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, tempera
     fallback = _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL)
     first = np.flatnonzero(np.isfinite(grid))[0]
     z = transform.to_log(grid[first:], floor_ugL)
-    n_obs = int(np.isfinite(z).sum())
-    if n_obs < min_observations:
-        return fallback(f"{n_obs} observed days before the origin, fewer than {min_observations}")
-    exog = future = None
     notes = []
+    exog = future = None
     if temp is not None:
         exog = _fill_gaps(temp[first:])
         if exog is None:
@@ -273,23 +276,36 @@ def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, tempera
                 raise ValueError(f"future_temperature_C must be finite with shape {valid.shape}, got {future.shape}")
         else:
             future = np.full(valid.size, exog[-1])
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        try:
-            model = SARIMAX(z, exog=exog, order=(1, 0, 0), trend="c")
-            if params is not None and np.size(params) != len(model.param_names):
-                params = None  # fitted with or without the regressor: not this model's parameters
-            result = model.fit(disp=False) if params is None else model.filter(np.asarray(params, dtype=float))
-            prediction = result.get_forecast(valid.size, exog=None if exog is None else future[:, None])
-            mean = np.asarray(prediction.predicted_mean, dtype=float)
-            sd = np.sqrt(np.asarray(prediction.var_pred_mean, dtype=float))
-        except (ValueError, np.linalg.LinAlgError) as error:
-            return fallback(f"the autoregression could not be fitted ({error})")
+    pairs = np.isfinite(z[1:]) & np.isfinite(z[:-1])
+    n_pairs = int(pairs.sum())
+    if n_pairs < min_observations:
+        return fallback(f"{n_pairs} pairs of consecutive observed days before the origin, "
+                        f"fewer than {min_observations}")
+    columns = [np.ones(z.size - 1), z[:-1]] + ([] if exog is None else [exog[1:]])
+    design = np.column_stack(columns)[pairs]
+    if np.linalg.matrix_rank(design) < design.shape[1]:
+        return fallback("the autoregression's design is singular (constant series or temperature)")
+    fit = OLS(z[1:][pairs], design).fit()
+    c, phi = fit.params[0], fit.params[1]
+    beta = 0.0 if exog is None else fit.params[2]
+    if not abs(phi) < 1:
+        return fallback(f"the fitted autoregression is not stationary (phi = {phi:.3f})")
+    last = np.flatnonzero(np.isfinite(z))[-1]
+    gap = z.size - 1 - last
+    held = 0.0 if exog is None else exog[-1]
+    drive = np.concatenate([np.full(gap, held), np.zeros(valid.size) if future is None else future])
+    mean = np.empty(drive.size)
+    m = z[last]
+    for s, t in enumerate(drive):
+        m = c + phi * m + beta * t
+        mean[s] = m
+    steps = np.arange(1, drive.size + 1)
+    var = fit.scale * (1.0 - phi ** (2 * steps)) / (1.0 - phi ** 2)     # σ²·Σ_{i<k} φ^{2i}
+    mean, sd = mean[gap:], np.sqrt(var[gap:])
     if not (np.all(np.isfinite(mean)) and np.all(np.isfinite(sd))):
         return fallback("the autoregression gave a non-finite forecast")
-    notes += [f"statsmodels: {w.message}" for w in caught]
     out = transform.from_log(mean + sd * stats.norm.ppf(_positions(members))[:, None])
-    return BaselineForecast("ar1", valid, out, "; ".join(notes), np.asarray(result.params, dtype=float))
+    return BaselineForecast("ar1", valid, out, "; ".join(notes))
 
 
 def _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL):

@@ -1,17 +1,15 @@
 """Baseline forecasters against statsmodels, scipy and their own documented definitions.
 
-References: statsmodels ``SARIMAX`` (Seabold and Perktold 2010, Proc. 9th
-Python in Science Conf.) fitted directly on the same series; scipy
-``stats.norm.ppf`` for the prior's normal quantiles. The series are
-invented and seeded.
+References: statsmodels ``AutoReg`` and ``OLS`` (Seabold and Perktold 2010,
+Proc. 9th Python in Science Conf.) fitted directly on the same series;
+scipy ``stats.norm.ppf`` for the normal quantiles. The series are invented
+and seeded.
 """
-import warnings
-
 import numpy as np
 import pytest
 from scipy import stats
-from statsmodels.tools.sm_exceptions import ConvergenceWarning
-from statsmodels.tsa.statespace.sarimax import SARIMAX
+from statsmodels.regression.linear_model import OLS
+from statsmodels.tsa.ar_model import AutoReg
 
 from assimilation import baselines as bl
 
@@ -19,11 +17,16 @@ DAY0 = 19_358.0   # 2023-01-01 in epoch days
 HORIZON = 10
 
 
+def _temperature(rng, n):
+    """Daily water temperature [°C]: a seasonal cycle with day-to-day noise."""
+    t = np.arange(n, dtype=float)
+    return 14.0 + 9.0 * np.sin(2 * np.pi * (t - 110) / 365.25) + rng.normal(0, 0.5, n)
+
+
 def _lake_series(seed=1, n=760):
     """Daily chlorophyll-a [µg/L] with a seasonal cycle, AR(1) noise and a temperature effect; gaps as NaN."""
     rng = np.random.default_rng(seed)
-    t = np.arange(n, dtype=float)
-    temperature = 14.0 + 9.0 * np.sin(2 * np.pi * (t - 110) / 365.25) + rng.normal(0, 0.5, n)
+    temperature = _temperature(rng, n)
     noise = np.zeros(n)
     for k in range(1, n):
         noise[k] = 0.8 * noise[k - 1] + rng.normal(0, 0.2)
@@ -31,50 +34,127 @@ def _lake_series(seed=1, n=760):
     chl[rng.random(n) < 0.25] = np.nan       # a quarter of the days missing
     chl[300:320] = np.nan                      # and a three-week gap
     chl[0] = np.exp(1.0)                       # first day observed
-    return DAY0 + t, chl, temperature
+    return DAY0 + np.arange(n, dtype=float), chl, temperature
 
 
-def _fit_directly(z, exog=None):
-    """statsmodels' default fit; its ConvergenceWarning (an L-BFGS line-search stop) is
-    recorded by the baseline, and silenced here so both fits run the same optimiser."""
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        return SARIMAX(z, exog=exog, order=(1, 0, 0), trend="c").fit(disp=False)
+def _simulated_ar1(seed, n, c, phi, beta, sigma):
+    """log chlorophyll-a z_t = c + phi·z_{t−1} + beta·T_t + N(0, sigma²), started at its mean; T [°C]."""
+    rng = np.random.default_rng(seed)
+    temperature = _temperature(rng, n)
+    z = np.empty(n)
+    z[0] = (c + beta * temperature.mean()) / (1 - phi)
+    for k in range(1, n):
+        z[k] = c + phi * z[k - 1] + beta * temperature[k] + rng.normal(0, sigma)
+    return DAY0 + np.arange(n, dtype=float), z, temperature
+
+
+def _pairs_ols(z, temperature):
+    """statsmodels OLS of z_t on (1, z_{t−1}, T_t) over the consecutive observed days."""
+    ok = np.isfinite(z[1:]) & np.isfinite(z[:-1])
+    design = np.column_stack([np.ones(z.size - 1), z[:-1], temperature[1:]])[ok]
+    return OLS(z[1:][ok], design).fit()
 
 
 def _log_members(forecast):
     return np.log(forecast.members_ugL)
 
 
-def test_ar1_baseline_matches_statsmodels_fitted_directly_on_the_same_series():
-    days, chl, temp = _lake_series()
+def _spread_width(m):
+    """Φ⁻¹((M − 0.5)/M) − Φ⁻¹(0.5/M) (scipy): the distance of the outer members in sd units."""
+    return stats.norm.ppf((m - 0.5) / m) - stats.norm.ppf(0.5 / m)
+
+
+def _coefficients_from_leads(forecast, z_last, future):
+    """(c, phi, beta) and sigma solved from the means and spread of leads 1..3 of a forecast whose
+    origin is an observed day: m_h = c + phi·m_{h−1} + beta·T_h with m_0 = z_last, and sd_1 = sigma."""
+    z = _log_members(forecast)
+    mean = z.mean(axis=0)          # members sit at symmetric normal quantiles: their mean is m_h
+    previous = np.concatenate([[z_last], mean[:2]])
+    c, phi, beta = np.linalg.solve(np.column_stack([np.ones(3), previous, future[:3]]), mean[:3])
+    return np.array([c, phi, beta]), (z[-1, 0] - z[0, 0]) / _spread_width(z.shape[0])
+
+
+def test_ar1_on_a_gap_free_series_matches_statsmodels_autoreg():
+    days, z, temp = _simulated_ar1(seed=1, n=600, c=0.4, phi=0.7, beta=0.04, sigma=0.25)
     origin = 500
-    fc = bl.ar1_forecast(days, chl, days[origin], HORIZON, temperature_C=temp)
-    assert fc.method == "ar1"
-    direct = _fit_directly(np.log(chl[: origin + 1]), temp[: origin + 1])
-    prediction = direct.get_forecast(HORIZON, exog=np.full((HORIZON, 1), temp[origin]))   # last temperature held
-    z = _log_members(fc)
-    np.testing.assert_allclose(z.mean(axis=0), prediction.predicted_mean, atol=1e-8)
-    assert direct.mle_retvals["converged"] or "converge" in fc.note   # the stop is reported, not hidden
-    # members at normal quantiles: the spread between two members is sd·(Φ⁻¹(q_hi) − Φ⁻¹(q_lo)) (scipy)
-    M = z.shape[0]
-    width = stats.norm.ppf((M - 0.5) / M) - stats.norm.ppf(0.5 / M)
-    np.testing.assert_allclose((z[-1] - z[0]) / width, np.sqrt(prediction.var_pred_mean), rtol=1e-8)
+    fc = bl.ar1_forecast(days, np.exp(z), days[origin], HORIZON, temperature_C=temp)
+    assert fc.method == "ar1" and fc.note == ""
     np.testing.assert_array_equal(fc.valid_day_d, days[origin] + np.arange(1, HORIZON + 1))
+    # reference: statsmodels AutoReg fitted by OLS on the same series, forecast with the last temperature held
+    direct = AutoReg(z[: origin + 1], lags=1, trend="c", exog=temp[: origin + 1]).fit()
+    held = np.full((HORIZON, 1), temp[origin])
+    log_members = _log_members(fc)
+    np.testing.assert_allclose(log_members.mean(axis=0), direct.forecast(HORIZON, exog=held), atol=1e-8)
+    # AutoReg's sd uses sigma2 = SSR/n; Bloomline's the OLS scale SSR/(n − k)
+    prediction = direct.get_prediction(start=origin + 1, end=origin + HORIZON, exog_oos=held)
+    sd = np.sqrt(prediction.var_pred_mean * direct.nobs / (direct.nobs - direct.params.size))
+    np.testing.assert_allclose((log_members[-1] - log_members[0]) / _spread_width(log_members.shape[0]), sd,
+                               rtol=1e-8)
 
 
-def test_ar1_baseline_without_temperature_and_with_a_temperature_forecast_matches_statsmodels():
-    days, chl, temp = _lake_series(seed=2)
-    origin = 450
-    z = np.log(chl[: origin + 1])
-    plain = bl.ar1_forecast(days, chl, days[origin], HORIZON)
-    direct = _fit_directly(z)
+def test_ar1_on_a_gap_free_series_without_temperature_and_with_a_temperature_forecast_matches_autoreg():
+    days, z, temp = _simulated_ar1(seed=2, n=400, c=0.2, phi=0.6, beta=0.05, sigma=0.3)
+    origin = 350
+    plain = bl.ar1_forecast(days, np.exp(z), days[origin], HORIZON)
+    direct = AutoReg(z[: origin + 1], lags=1, trend="c").fit()          # statsmodels AutoReg
     np.testing.assert_allclose(_log_members(plain).mean(axis=0), direct.forecast(HORIZON), atol=1e-8)
     future = temp[origin + 1: origin + 1 + HORIZON] + 1.0
-    driven = bl.ar1_forecast(days, chl, days[origin], HORIZON, temperature_C=temp, future_temperature_C=future)
-    direct = _fit_directly(z, temp[: origin + 1])
+    driven = bl.ar1_forecast(days, np.exp(z), days[origin], HORIZON, temperature_C=temp, future_temperature_C=future)
+    direct = AutoReg(z[: origin + 1], lags=1, trend="c", exog=temp[: origin + 1]).fit()   # statsmodels AutoReg
     np.testing.assert_allclose(_log_members(driven).mean(axis=0), direct.forecast(HORIZON, exog=future[:, None]),
                                atol=1e-8)
+
+
+def test_ar1_on_a_series_with_gaps_has_the_least_squares_coefficients_of_the_consecutive_pairs():
+    days, chl, temp = _lake_series()
+    temp[[40, 41, 42, 250, 480]] = np.nan       # temperature gaps, filled by linear interpolation in time
+    origin = int(np.flatnonzero(np.isfinite(chl[:501]))[-1])
+    z = np.log(chl[: origin + 1])
+    t = np.arange(origin + 1, dtype=float)
+    seen = np.isfinite(temp[: origin + 1])
+    filled = np.interp(t, t[seen], temp[: origin + 1][seen])
+    direct = _pairs_ols(z, filled)               # statsmodels OLS on the consecutive observed days
+    future = np.array([10.0, 20.0, 5.0])
+    fc = bl.ar1_forecast(days, chl, days[origin], 3, temperature_C=temp, future_temperature_C=future)
+    coefficients, sigma = _coefficients_from_leads(fc, z[-1], future)
+    np.testing.assert_allclose(coefficients, direct.params, rtol=1e-7)
+    assert sigma == pytest.approx(np.sqrt(direct.scale), rel=1e-8)
+
+    # an origin two days after the last value: the same fit, k = h + 2 steps from it
+    later = days[origin] + 2
+    chl_later = np.concatenate([chl[: origin + 1], [np.nan, np.nan]])
+    temp_later = np.concatenate([temp[: origin + 1], [temp[origin] + 3.0, np.nan]])
+    fc = bl.ar1_forecast(days[: origin + 3], chl_later, later, 3, temperature_C=temp_later)
+    c, phi, beta = direct.params
+    held = temp[origin] + 3.0                   # the last observed temperature, for the gap days and the leads
+    m, mean = z[-1], []
+    for _ in range(5):
+        m = c + phi * m + beta * held
+        mean.append(m)
+    k = np.arange(3, 6)
+    sd = np.sqrt(direct.scale * np.array([np.sum(phi ** (2 * np.arange(j))) for j in k]))
+    log_members = _log_members(fc)
+    np.testing.assert_allclose(log_members.mean(axis=0), mean[2:], atol=1e-8)
+    np.testing.assert_allclose((log_members[-1] - log_members[0]) / _spread_width(log_members.shape[0]), sd,
+                               rtol=1e-8)
+
+
+def test_ar1_recovers_a_simulated_autoregression_within_a_few_standard_errors():
+    truth = np.array([0.4, 0.8, 0.03])           # c, phi, beta
+    sigma = 0.2
+    days, z, temp = _simulated_ar1(seed=12, n=2000, c=truth[0], phi=truth[1], beta=truth[2], sigma=sigma)
+    missing = np.random.default_rng(13).random(z.size) < 0.15
+    missing[[0, -1]] = False                     # first day and origin observed
+    z[missing] = np.nan
+    future = np.array([12.0, 22.0, 6.0])
+    fc = bl.ar1_forecast(days, np.exp(z), days[-1], 3, temperature_C=temp, future_temperature_C=future)
+    assert fc.method == "ar1"
+    coefficients, sigma_hat = _coefficients_from_leads(fc, z[-1], future)
+    se = _pairs_ols(z, temp).bse                 # OLS standard errors (statsmodels) of the same estimator
+    assert np.all(np.abs(coefficients - truth) < 4 * se)
+    # large-sample sd of the sd of n normal residuals: sigma/sqrt(2n) (from memory)
+    n_pairs = _pairs_ols(z, temp).nobs
+    assert abs(sigma_hat - sigma) < 4 * sigma / np.sqrt(2 * n_pairs)
 
 
 @pytest.mark.parametrize("forecaster", ["persistence", "persistence_ensemble", "climatology", "ar1_forecast"])
@@ -183,18 +263,23 @@ def test_baselines_reject_bad_input():
         bl.ar1_forecast(days, chl, days[100], 3, temperature_C=temp, future_temperature_C=np.ones(2))
 
 
-def test_ar1_with_earlier_parameters_filters_the_new_series_as_statsmodels_does():
-    # statsmodels' own SARIMAX.filter with the given parameters is the reference
-    rng = np.random.default_rng(11)
-    days = np.arange(19500.0, 19580.0)
-    z = np.empty(days.size)
-    z[0] = 1.0
-    for k in range(1, days.size):
-        z[k] = 0.3 + 0.7 * z[k - 1] + rng.normal(0, 0.2)
-    chl = np.exp(z)
-    earlier = bl.ar1_forecast(days[:60], chl[:60], days[59], 5)
-    later = bl.ar1_forecast(days, chl, days[-1], 5, params=earlier.params)
-    direct = SARIMAX(np.log(chl), order=(1, 0, 0), trend="c").filter(earlier.params).get_forecast(5)
-    # members sit at symmetric normal quantiles of the log forecast, so their log mean is its mean
-    assert np.allclose(np.log(later.members_ugL).mean(axis=0), direct.predicted_mean, atol=1e-8)
-    assert np.array_equal(later.params, earlier.params)
+def test_ar1_falls_back_on_a_non_stationary_fit():
+    # an explosive series, z_t = 1.05·z_{t−1} + small noise: the least-squares phi is above 1
+    rng = np.random.default_rng(14)
+    z = np.empty(80)
+    z[0] = 0.2
+    for k in range(1, z.size):
+        z[k] = 1.05 * z[k - 1] + rng.normal(0, 0.01)
+    days = DAY0 + np.arange(z.size, dtype=float)
+    fc = bl.ar1_forecast(days, np.exp(z), days[-1], HORIZON)
+    assert fc.method == "persistence_ensemble"
+    assert "not stationary" in fc.note
+    np.testing.assert_array_equal(fc.members_ugL, bl.persistence_ensemble(days, np.exp(z), days[-1], HORIZON).members_ugL)
+
+
+def test_ar1_falls_back_on_a_singular_design():
+    days, chl, _ = _lake_series(seed=15)
+    constant = np.full(days.size, 18.0)          # a constant temperature duplicates the intercept
+    fc = bl.ar1_forecast(days, chl, days[400], HORIZON, temperature_C=constant)
+    assert fc.method == "persistence_ensemble"
+    assert "singular" in fc.note
