@@ -64,7 +64,7 @@ class Checkpoint:
         return MAGIC + struct.pack("<Q", len(header)) + header + body
 
     @classmethod
-    def from_bytes(cls, data: bytes) -> "Checkpoint":
+    def from_bytes(cls, data: bytes) -> Checkpoint:
         data = bytes(data)
         if data[:8] != MAGIC or len(data) < 16:
             raise ValueError("not a Bloomline checkpoint (bad magic bytes)")
@@ -78,7 +78,7 @@ class Checkpoint:
         return cls(time_d=header["time_d"], ensemble=ensemble, names=tuple(header["names"]),
                    rng_state=header["rng_state"])
 
-    def equals(self, other: "Checkpoint") -> bool:
+    def equals(self, other: Checkpoint) -> bool:
         """Bit-for-bit equality of time, names, ensemble and random state."""
         return (self.time_d == other.time_d and self.names == other.names
                 and self.ensemble.shape == other.ensemble.shape

@@ -73,7 +73,7 @@ class Observations:
             raise ValueError("Observations.basin must be >= 0 and sensor >= -1")
 
     @staticmethod
-    def empty() -> "Observations":
+    def empty() -> Observations:
         """No readings."""
         return Observations(np.zeros(0), np.zeros(0, dtype=str), np.zeros(0, dtype=int),
                             np.zeros(0, dtype=int), np.zeros(0), np.zeros(0))
@@ -81,7 +81,7 @@ class Observations:
     def __len__(self) -> int:
         return int(self.time_d.size)
 
-    def select(self, mask) -> "Observations":
+    def select(self, mask) -> Observations:
         """The readings where ``mask`` (boolean or index array) holds."""
         return Observations(self.time_d[mask], self.kind[mask], self.basin[mask],
                             self.sensor[mask], self.value[mask], self.error_sd[mask])

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
+
 def _positive(name, value):
     value = np.asarray(value, dtype=float)
     if np.any(~(value > 0)):

@@ -13,12 +13,12 @@
 from __future__ import annotations
 
 import datetime as dt
-from typing import Iterable
+from collections.abc import Iterable
 
 import numpy as np
 import pandas as pd
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 EPOCH = dt.datetime(1970, 1, 1, tzinfo=UTC)
 SECONDS_PER_DAY = 86400.0
 NS_PER_SECOND = 1_000_000_000

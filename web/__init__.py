@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import datetime as dt
 import os
-from typing import Callable
+from collections.abc import Callable
 
 from flask import Flask, abort, current_app, jsonify, render_template, request
 from werkzeug.exceptions import HTTPException
@@ -24,7 +24,7 @@ ENV_CONFIG = "BLOOMLINE_CONFIG"
 
 
 def _utcnow() -> dt.datetime:
-    return dt.datetime.now(dt.timezone.utc)
+    return dt.datetime.now(dt.UTC)
 
 
 def _resolve_config(config) -> Config:

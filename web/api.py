@@ -26,7 +26,7 @@ api = Blueprint("api", __name__)
 
 
 def _iso(t: dt.datetime | None) -> str | None:
-    return None if t is None else t.astimezone(dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    return None if t is None else t.astimezone(dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 def _jsonable(x):
@@ -74,7 +74,7 @@ def _time_arg(name: str) -> dt.datetime | None:
         t = dt.datetime.fromisoformat(value.replace("Z", "+00:00"))
     except ValueError:
         abort(400, description=f"{name} must be an ISO 8601 date or time, got {value!r}")
-    return t if t.tzinfo is not None else t.replace(tzinfo=dt.timezone.utc)
+    return t if t.tzinfo is not None else t.replace(tzinfo=dt.UTC)
 
 
 def _basins_arg(wb) -> list[str]:

@@ -26,12 +26,12 @@ def _basin(wb, basin_id: str):
 
 @pages.app_template_filter("utc")
 def _fmt_utc(t: dt.datetime | None, fmt: str = "%Y-%m-%d %H:%M") -> str:
-    return "—" if t is None else t.astimezone(dt.timezone.utc).strftime(fmt) + " UTC"
+    return "—" if t is None else t.astimezone(dt.UTC).strftime(fmt) + " UTC"
 
 
 @pages.app_template_filter("day")
 def _fmt_day(t: dt.datetime | None) -> str:
-    return "—" if t is None else t.astimezone(dt.timezone.utc).strftime("%a %d %b")
+    return "—" if t is None else t.astimezone(dt.UTC).strftime("%a %d %b")
 
 
 @pages.app_template_filter("pct")

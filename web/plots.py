@@ -31,7 +31,7 @@ LEVEL_COLOURS = ("#E69F00", "#CC79A7", "#7a0177", "#000000")
 
 
 def _naive(t: dt.datetime) -> dt.datetime:
-    return t.astimezone(dt.timezone.utc).replace(tzinfo=None)
+    return t.astimezone(dt.UTC).replace(tzinfo=None)
 
 
 def fan_chart(*, title: str, forecast: list[dict], history: list[dict], observed: list[dict],

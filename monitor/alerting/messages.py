@@ -36,7 +36,7 @@ def basin_name(water_body, basin_id: str) -> str:
 
 
 def _fmt_time(t: dt.datetime) -> str:
-    return t.astimezone(dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    return t.astimezone(dt.UTC).strftime("%Y-%m-%d %H:%M UTC")
 
 
 def _why(water_body, event: dict) -> str:

@@ -56,9 +56,9 @@ def build_message(row, sender: str, now: dt.datetime) -> EmailMessage:
     msg["From"] = sender
     msg["To"] = row.recipient
     msg["Subject"] = row.subject
-    msg["Date"] = format_datetime(now.astimezone(dt.timezone.utc))
+    msg["Date"] = format_datetime(now.astimezone(dt.UTC))
     domain = sender.rpartition("@")[2] or "localhost"
-    created = row.created_at.astimezone(dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    created = row.created_at.astimezone(dt.UTC).strftime("%Y%m%dT%H%M%SZ")
     msg["Message-ID"] = f"<bloomline-{created}-{row.id:07d}@{domain}>"
     msg["Auto-Submitted"] = "auto-generated"  # RFC 3834: no auto-replies, please
     msg.set_content(row.body, cte="quoted-printable")

@@ -31,8 +31,8 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Mapping, Sequence
 
 from sqlalchemy import and_, select, update
 from sqlalchemy.engine import Engine

@@ -15,8 +15,8 @@ from __future__ import annotations
 import datetime as dt
 import re
 import secrets
+from collections.abc import Iterable
 from dataclasses import dataclass
-from typing import Iterable
 
 from sqlalchemy import and_, select, update
 from sqlalchemy.engine import Connection, Engine

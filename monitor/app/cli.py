@@ -9,9 +9,9 @@ from pathlib import Path
 
 import click
 
-from monitor.config import ConfigError, load_config
 from monitor.app.hindcast_cli import hindcast
 from monitor.app.ingest_cli import ingest
+from monitor.config import ConfigError, load_config
 from monitor.timeutil import now_utc, parse_utc
 
 

@@ -20,14 +20,14 @@ import click
 import pandas as pd
 from sqlalchemy import func, select
 
-from monitor.store import schema
 from monitor.alerting.caution import CAUTION
-from monitor.config import Config, load_config
 from monitor.alerting.frameworks import FRAMEWORKS
-from monitor.ingest.feeds.csv_folder import feed_files
 from monitor.alerting.levels import level_label
-from monitor.store.readings import ingest_summary
 from monitor.app.service import Service
+from monitor.config import Config, load_config
+from monitor.ingest.feeds.csv_folder import feed_files
+from monitor.store import schema
+from monitor.store.readings import ingest_summary
 from monitor.timeutil import UTC, as_utc
 
 SAMPLE_FEEDS = Path(__file__).resolve().parents[2] / "sample_feeds"

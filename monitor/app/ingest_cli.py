@@ -28,9 +28,9 @@ def _files(path: Path, pattern: str) -> list[Path]:
               default="bloomline.toml", show_default=True, help="The Bloomline TOML (or $BLOOMLINE_CONFIG).")
 def ingest(target: str, feed_name: str, config_path: str | None) -> None:
     """Load PATH (a file or folder) or URL into the store as the feed NAME describes."""
-    from monitor.store.db import open_store
     from monitor.ingest.batches import BatchResult, ingest_bytes
     from monitor.ingest.feeds.csv_folder import ingest_path
+    from monitor.store.db import open_store
 
     path = config_path
     try:

@@ -15,8 +15,8 @@ from apscheduler.schedulers.blocking import BlockingScheduler
 from apscheduler.triggers.cron import CronTrigger
 from apscheduler.triggers.interval import IntervalTrigger
 
-from monitor.config import Config
 from monitor.app.service import Service
+from monitor.config import Config
 
 log = logging.getLogger("bloomline")
 

@@ -10,18 +10,18 @@ from __future__ import annotations
 
 import datetime as dt
 import logging
-from typing import Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 
 from sqlalchemy.engine import Engine
 
 from monitor.alerting import notify, subscriptions
-from monitor.forecasting import cycle
-from monitor.store import runs as store
 from monitor.config import Config
-from monitor.store.db import open_store
-from monitor.ingest.feeds import poll_due, start_mqtt_feeds
+from monitor.forecasting import cycle
 from monitor.ingest.batches import BatchResult
+from monitor.ingest.feeds import poll_due, start_mqtt_feeds
 from monitor.ingest.feeds.csv_folder import ingest_all
+from monitor.store import runs as store
+from monitor.store.db import open_store
 from monitor.timeutil import now_utc
 
 log = logging.getLogger("bloomline")

@@ -20,9 +20,27 @@ from monitor.config.errors import ConfigError
 from monitor.config.load import load_config, parse_config
 from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.config.models import (
-    BELOW_DETECTION, DEFAULT_OBSERVATION_ERRORS, FEED_KINDS, FEED_ROLES, LAYOUTS, STATION_KINDS, USES,
-    AlertConfig, BasinConfig, Calibration, ColumnConfig, Config, FeedConfig, FilterSettings, InflowConfig,
-    ObservationErrorConfig, ScheduleConfig, ServiceConfig, SmtpConfig, StationConfig, SubscriberConfig,
+    BELOW_DETECTION,
+    DEFAULT_OBSERVATION_ERRORS,
+    FEED_KINDS,
+    FEED_ROLES,
+    LAYOUTS,
+    STATION_KINDS,
+    USES,
+    AlertConfig,
+    BasinConfig,
+    Calibration,
+    ColumnConfig,
+    Config,
+    FeedConfig,
+    FilterSettings,
+    InflowConfig,
+    ObservationErrorConfig,
+    ScheduleConfig,
+    ServiceConfig,
+    SmtpConfig,
+    StationConfig,
+    SubscriberConfig,
     WaterBodyConfig,
 )
 from monitor.config.sections import FILTER_SETTINGS_KEYS

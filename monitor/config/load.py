@@ -10,8 +10,9 @@ from __future__ import annotations
 
 import os
 import tomllib
+from collections.abc import Mapping
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
 from monitor.config.errors import ConfigError
 from monitor.config.feeds import read_feed
@@ -19,7 +20,12 @@ from monitor.config.model_setup import check_filter_config
 from monitor.config.models import Config
 from monitor.config.reader import Reader
 from monitor.config.sections import (
-    read_filter, read_observation_errors, read_schedule, read_service, read_smtp, read_subscriber,
+    read_filter,
+    read_observation_errors,
+    read_schedule,
+    read_service,
+    read_smtp,
+    read_subscriber,
 )
 from monitor.config.stations import qc_table, read_station
 from monitor.config.water_bodies import read_water_body

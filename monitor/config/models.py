@@ -7,9 +7,10 @@ is made, so lookups by id do not scan lists.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
 from monitor.alerting.frameworks import AlertLevel
 

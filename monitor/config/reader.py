@@ -8,8 +8,9 @@ misspelt option is an error at load time rather than silently ignored.
 from __future__ import annotations
 
 import os
+from collections.abc import Mapping
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from monitor.config.errors import ConfigError
@@ -64,12 +65,12 @@ class Reader:
             raise self.error(name, f"expected one of {', '.join(choices)}; got {value!r}")
         return value
 
-    def sub(self, name: str, required: bool = False) -> "Reader":
+    def sub(self, name: str, required: bool = False) -> Reader:
         """The sub-table ``name`` (empty when absent and not required)."""
         value = self.get(name, dict, _MISSING if required else {})
         return Reader(self.path, value, self.key(name))
 
-    def items(self, name: str, required: bool = False) -> list["Reader"]:
+    def items(self, name: str, required: bool = False) -> list[Reader]:
         """The array of tables ``name``, one reader per element."""
         value = self.get(name, list, _MISSING if required else [])
         out = []

@@ -7,8 +7,13 @@ from pathlib import Path
 
 from monitor.config.model_setup import filter_option_kinds
 from monitor.config.models import (
-    DEFAULT_OBSERVATION_ERRORS, FilterSettings, ObservationErrorConfig, ScheduleConfig, ServiceConfig,
-    SmtpConfig, SubscriberConfig,
+    DEFAULT_OBSERVATION_ERRORS,
+    FilterSettings,
+    ObservationErrorConfig,
+    ScheduleConfig,
+    ServiceConfig,
+    SmtpConfig,
+    SubscriberConfig,
 )
 from monitor.config.reader import Reader, database_url, resolve, secret
 

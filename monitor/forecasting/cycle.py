@@ -31,13 +31,13 @@ from assimilation.forecast import QUANTILES, daily_statistics
 from assimilation.observe import OBSERVABLE_KINDS, Observations
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 from monitor.alerting import rules as alerts
-from monitor.store import runs as store
 from monitor.config import Config, WaterBodyConfig
-from monitor.forecasting.baselines import baseline_members
-from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history
 from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
+from monitor.forecasting.baselines import baseline_members
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
+from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history
 from monitor.forecasting.quantities import QUANTITIES
+from monitor.store import runs as store
 from monitor.store.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import from_epoch_days, to_epoch_days
 

@@ -8,7 +8,7 @@ worker processes on this machine.
 
 from __future__ import annotations
 
-from typing import Callable, Sequence
+from collections.abc import Callable, Sequence
 
 
 class DaskRunner:

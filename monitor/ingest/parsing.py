@@ -26,9 +26,9 @@ unknown station, repeated header) counts as one rejected item.
 from __future__ import annotations
 
 import datetime as dt
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import PurePath
-from typing import Callable, Mapping
 
 import numpy as np
 import pandas as pd
@@ -142,7 +142,7 @@ class _Candidates:
     cells: np.ndarray
     col_names: np.ndarray
 
-    def subset(self, mask: np.ndarray) -> "_Candidates":
+    def subset(self, mask: np.ndarray) -> _Candidates:
         return _Candidates(self.record[mask], self.variable[mask], self.unit[mask], self.cells[mask],
                            self.col_names[mask])
 
@@ -366,7 +366,7 @@ def _convert_units(cand: _Candidates, station: np.ndarray, values: np.ndarray, k
             scale, offset = conversion(v, u, cal)
         except UnitError as exc:
             msg = str(exc)
-            readings.reject(np.isin(np.arange(cand.record.size), members), lambda i: where(i) + msg)
+            readings.reject(np.isin(np.arange(cand.record.size), members), lambda i, msg=msg: where(i) + msg)
             continue
         values[members] = values[members] * scale + offset
 

@@ -40,7 +40,7 @@ The functions here are pure: numpy arrays in, flag arrays out.
 
 from __future__ import annotations
 
-from typing import Mapping
+from collections.abc import Mapping
 
 import numpy as np
 

@@ -17,9 +17,9 @@ with the stored one in the reason, except that a stored *missing* reading
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass
 from itertools import chain, repeat
-from typing import Iterator
 
 import numpy as np
 import pandas as pd
@@ -51,7 +51,7 @@ class _Stored:
     def __len__(self) -> int:
         return int(self.t.size)
 
-    def subset(self, mask: np.ndarray) -> "_Stored":
+    def subset(self, mask: np.ndarray) -> _Stored:
         return _Stored(self.id[mask], self.t[mask], self.value[mask], self.qc_flag[mask], self.qc_tests[mask],
                        self.source[mask])
 

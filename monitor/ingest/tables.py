@@ -13,8 +13,9 @@ import codecs
 import csv
 import io
 import json
+from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any
 
 import numpy as np
 

@@ -24,7 +24,7 @@ Conversion factors:
 
 from __future__ import annotations
 
-from typing import Mapping
+from collections.abc import Mapping
 
 import numpy as np
 

@@ -70,7 +70,7 @@ def _stored_keys(conn: Connection, frame, source: str) -> set[tuple]:
             driver_forecasts.c.station_id == station, driver_forecasts.c.source == source,
             driver_forecasts.c.issued_utc >= datetime_from_ns(issued_unique.min()),
             driver_forecasts.c.issued_utc <= datetime_from_ns(issued_unique.max()))).fetchall()
-        for var, iss, val, value in rows:
+        for var, iss, val, _value in rows:
             existing.add((station, var, ns_from_datetime(iss), ns_from_datetime(val)))
     return existing
 

@@ -8,7 +8,7 @@ units (:mod:`monitor.ingest.variables`); QC flags as in QARTOD (1 pass,
 from __future__ import annotations
 
 from collections import Counter
-from typing import Iterable
+from collections.abc import Iterable
 
 import numpy as np
 import pandas as pd
@@ -17,7 +17,6 @@ from sqlalchemy.engine import Engine
 
 from monitor.store.schema import driver_forecasts, ingest_batches, readings, rejected_rows
 from monitor.timeutil import aware_utc, utc_from_db, utc_series_from_db
-
 
 
 def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,

@@ -9,14 +9,14 @@ on SQLite and PostgreSQL alike.
 from __future__ import annotations
 
 import datetime as dt
-from typing import Iterable
+from collections.abc import Iterable
 
 import numpy as np
 from sqlalchemy import delete, func, insert, select, update
 from sqlalchemy.engine import Engine
 
-from monitor.store import schema
 from monitor.config import Config
+from monitor.store import schema
 from monitor.timeutil import now_utc
 
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import datetime as dt
 from collections import defaultdict
-from typing import Iterable
+from collections.abc import Iterable
 
 from sqlalchemy import and_, select
 from sqlalchemy.engine import Engine
@@ -146,10 +146,10 @@ def observed_daily(engine: Engine, config, water_body_id: str, basin_id: str, *,
     sums: dict[dt.date, list[float]] = defaultdict(lambda: [0.0, 0])
     with engine.connect() as conn:
         for t, value in conn.execute(q):
-            acc = sums[t.astimezone(dt.timezone.utc).date()]
+            acc = sums[t.astimezone(dt.UTC).date()]
             acc[0] += float(value)
             acc[1] += 1
-    return [{"day": dt.datetime(d.year, d.month, d.day, tzinfo=dt.timezone.utc), "mean": s / n, "n": n}
+    return [{"day": dt.datetime(d.year, d.month, d.day, tzinfo=dt.UTC), "mean": s / n, "n": n}
             for d, (s, n) in sorted(sums.items())]
 
 

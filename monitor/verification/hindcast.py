@@ -34,6 +34,7 @@ from monitor.verification.pairs import Pairs, water_body_pairs
 from monitor.verification.replay import analysis_days, replay
 from monitor.verification.warnings import warning_table
 
+
 @dataclass
 class HindcastResult:
     """Everything a hindcast measured (tables are pandas DataFrames)."""

@@ -68,7 +68,7 @@ def plot_season(path: Path, daily: pd.DataFrame, weather: pd.DataFrame, inflows:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
     fig, ax = plt.subplots(5, 1, figsize=(12, 16), sharex=True)
-    for (wb, basin), d in daily.groupby(["water_body", "basin"], sort=False):
+    for (_wb, basin), d in daily.groupby(["water_body", "basin"], sort=False):
         t = pd.to_datetime(d["date"])
         ax[0].semilogy(t, d["chl_cyanobacteria_ugL"], label=basin)
         ax[1].plot(t, d["chl_total_ugL"], label=f"{basin} total")

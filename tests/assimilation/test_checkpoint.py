@@ -1,12 +1,11 @@
 """Checkpoints: exact round trip through bytes, and a resumed run equals one that never stopped."""
 import numpy as np
 import pytest
+from filter_twin import FIRST_GUESS, T0_D, make_twin
 
 from assimilation.checkpoint import Checkpoint
 from assimilation.filter_config import FilterConfig
 from assimilation.filter_cycle import assimilate, initial_checkpoint
-
-from filter_twin import FIRST_GUESS, T0_D, make_twin
 
 
 def test_checkpoint_round_trips_every_bit():

@@ -84,7 +84,7 @@ def test_chemostat_washes_out_when_mu_max_is_below_dilution():
 
 
 def test_chemostat_critical_dilution_separates_survival_from_washout():
-    # critical D = mu_max·S_in/(K + S_in) = 1.0·10/10.5 = 0.9524 /d (REFERENCES.md [computed])
+    # critical D = mu_max·S_in/(K + S_in) = 1.0·10/10.5 = 0.9524 /d (docs/references.md [computed])
     survive_spec, drivers = chemostat([group("single", 1.0, 0.5)], 0.90)
     _, A_survive = run(survive_spec, drivers, 300.0, [1.0])
     wash_spec, drivers = chemostat([group("single", 1.0, 0.5)], 1.00)

@@ -6,16 +6,16 @@ nitrogen fixation; green algae grow faster at 20 °C and below. Expected outcome
 (common practice in limnology: warm, calm, N-poor water favours
 cyanobacteria; Paerl & Huisman 2008, Science 320:57) are checked against
 the WHO (2003) recreational guidance levels of 10 and 50 µg/L
-chlorophyll-a with cyanobacterial dominance (REFERENCES.md [verified]).
+chlorophyll-a with cyanobacterial dominance (docs/references.md [verified]).
 """
 from dataclasses import replace
 
 import numpy as np
+from model_scenarios import JUNE_FIRST_2026
 
 from assimilation import integrate
 from assimilation.parameters import default_spec
 from assimilation.spec import Basin, Drivers, Network, StateLayout
-from model_scenarios import JUNE_FIRST_2026
 
 DAYS = 122            # June to September
 WHO_RECREATIONAL_LOW_UGL = 10.0

@@ -11,12 +11,11 @@ climatology ≈ 3.6. With 20 members, Gaspari–Cohn localization and
 multiplicative inflation, a well-tuned filter must be below 0.30
 (stochastic) and 0.25 (square root) over a long run.
 """
+import lorenz96
 import numpy as np
 import pytest
 
 from assimilation import enkf, inflation, localization
-
-import lorenz96
 
 N_VARIABLES = 40
 MEMBERS = 20

@@ -3,14 +3,13 @@ import json
 
 import numpy as np
 import pytest
+from filter_twin import FIRST_GUESS, T0_D, make_twin
 
 from assimilation.augmentation import split
 from assimilation.filter_config import FilterConfig
 from assimilation.filter_cycle import assimilate, initial_checkpoint
 from assimilation.observe import Observations
 from assimilation.spec import StateLayout
-
-from filter_twin import FIRST_GUESS, T0_D, make_twin
 
 
 @pytest.fixture(scope="module")

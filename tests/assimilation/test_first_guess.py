@@ -3,13 +3,12 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from filter_twin import T0_D, spec
 
 from assimilation.filter_config import FilterConfig
 from assimilation.filter_cycle import initial_checkpoint
 from assimilation.first_guess import DEFAULT_FIRST_GUESS, FirstGuess
 from assimilation.spec import StateLayout
-
-from filter_twin import T0_D, spec
 
 
 def test_first_guess_fills_every_basin_with_nutrients_and_group_chlorophyll():

@@ -10,13 +10,12 @@ that a window mean averages down).
 """
 import numpy as np
 import pytest
+from filter_twin import CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TWIN_SETTINGS, make_twin
 
 from assimilation.augmentation import split
 from assimilation.filter_config import FilterConfig
 from assimilation.filter_cycle import assimilate, initial_checkpoint
 from assimilation.spec import StateLayout
-
-from filter_twin import CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TWIN_SETTINGS, make_twin
 
 DAYS = 90
 SEEDS = (1, 2, 3, 4)

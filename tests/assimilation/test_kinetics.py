@@ -24,7 +24,7 @@ def test_temperature_factor_with_eppley_theta_reproduces_eppley_curve():
     T = np.array([5.0, 12.0, 20.0, 28.0])
     eppley = 10 ** (0.0275 * T - 0.070) / 10 ** (0.0275 * 20.0 - 0.070)
     np.testing.assert_allclose(kinetics.temperature_factor(THETA_EPPLEY, T), eppley, rtol=1e-12)
-    # and the theta ≈ 1.066 quoted beside it (REFERENCES.md)
+    # and the theta ≈ 1.066 quoted beside it (docs/references.md)
     assert THETA_EPPLEY == pytest.approx(1.066, abs=1e-3)
 
 

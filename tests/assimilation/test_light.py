@@ -36,7 +36,7 @@ def test_self_shading_adds_chlorophyll_specific_attenuation():
 
 
 def test_secchi_depth_follows_the_1_7_rule():
-    # Kd ≈ 1.7 / Secchi depth (rule of thumb, REFERENCES.md [verified])
+    # Kd ≈ 1.7 / Secchi depth (rule of thumb, docs/references.md [verified])
     assert light.secchi_depth(0.85) == pytest.approx(2.0)
 
 

@@ -1,8 +1,7 @@
 """The Lorenz-96 model used by the filter checks (Lorenz 1996; Lorenz and Emanuel 1998)."""
+import lorenz96
 import numpy as np
 from scipy.integrate import solve_ivp
-
-import lorenz96
 
 
 def test_uniform_state_at_the_forcing_is_a_fixed_point():

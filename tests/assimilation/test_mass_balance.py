@@ -6,12 +6,12 @@ exactly the fixed N less what is denitrified, settles or is not recycled.
 from dataclasses import replace
 
 import numpy as np
+from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 
 from assimilation import budget, integrate, model
 from assimilation.forcing import forcing_at
 from assimilation.parameters import default_spec
 from assimilation.spec import Drivers, Network, StateLayout
-from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 
 
 def closed_drivers(days=30, n_basins=3):

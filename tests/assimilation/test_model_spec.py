@@ -3,12 +3,12 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 
 from assimilation import budget, integrate, model
 from assimilation.forcing import forcing_at
 from assimilation.parameters import default_groups, default_spec
 from assimilation.spec import Basin, Drivers, Network, StateLayout
-from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 
 
 def test_state_layout_is_basin_major_with_nitrogen_phosphorus_then_groups():

@@ -23,11 +23,11 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 from scipy.integrate import solve_ivp
 
 from assimilation import budget, integrate, model
 from assimilation.forcing import forcing_at
-from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec
 
 FLOOR_UGL = 0.1
 TOLERANCE_1H = 0.05

@@ -6,7 +6,7 @@ from assimilation.trophic import trophic_class, tsi_chlorophyll, tsi_secchi, tsi
 
 @pytest.mark.parametrize("secchi, expected", [(1.0, 60.00), (2.0, 50.01)])
 def test_tsi_secchi_matches_carlson_worked_values(secchi, expected):
-    # Carlson (1977) Limnol. Oceanogr. 22:361, TSI(SD) = 60 − 14.41 ln SD; worked values in REFERENCES.md [computed]
+    # Carlson (1977) Limnol. Oceanogr. 22:361, TSI(SD) = 60 − 14.41 ln SD; worked values in docs/references.md [computed]
     assert tsi_secchi(secchi) == pytest.approx(expected, abs=0.005)
 
 
@@ -37,7 +37,7 @@ def test_tsi_functions_are_vectorised():
     (50.0, "eutrophic"), (70.0, "eutrophic"), (70.1, "hypereutrophic"),
 ])
 def test_trophic_class_uses_carlson_boundaries(tsi, label):
-    # classes: oligotrophic < 40, mesotrophic 40–50, eutrophic 50–70, hypereutrophic > 70 (REFERENCES.md)
+    # classes: oligotrophic < 40, mesotrophic 40–50, eutrophic 50–70, hypereutrophic > 70 (docs/references.md)
     assert trophic_class(tsi) == label
 
 
@@ -49,15 +49,16 @@ def test_tsi_rejects_non_positive_values():
 
 
 def test_model_secchi_depth_and_total_phosphorus_feed_carlson_indices():
+    from model_scenarios import three_basin_spec
+
     from assimilation import budget
     from assimilation.spec import StateLayout
-    from model_scenarios import three_basin_spec
 
     spec = three_basin_spec()
     layout = StateLayout(spec)
     E = layout.pack(np.full((1, 3), 200.0), np.full((1, 3), 20.0), np.array([[[10.0, 10.0], [0.0, 0.0], [1.0, 0.0]]]))
     sd = budget.secchi_depth(E, spec)[0]
-    # SD = 1.7 / (0.8 + 0.016·20) = 1.518 m (rule of thumb Kd ≈ 1.7/SD, REFERENCES.md)
+    # SD = 1.7 / (0.8 + 0.016·20) = 1.518 m (rule of thumb Kd ≈ 1.7/SD, docs/references.md)
     assert sd[0] == pytest.approx(1.7 / (0.8 + 0.016 * 20.0))
     assert sd[1] > sd[0]
     # TP = SRP + algal P = 20 + 20·50/41 = 44.4 µg/L → TSI(TP) = 14.42 ln 44.4 + 4.15 = 58.8 (Carlson 1977)

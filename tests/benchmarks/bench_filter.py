@@ -41,6 +41,7 @@ import numpy as np
 
 sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "assimilation"))
 
+from filter_twin import CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TWIN_SETTINGS, truth_run  # noqa: E402
 from filterpy.kalman import EnsembleKalmanFilter  # noqa: E402
 
 from assimilation import integrate, observe  # noqa: E402
@@ -49,8 +50,6 @@ from assimilation.filter_config import FilterConfig  # noqa: E402
 from assimilation.filter_cycle import assimilate, initial_checkpoint  # noqa: E402
 from assimilation.model import PARAMETER_KEYS  # noqa: E402
 from assimilation.spec import StateLayout  # noqa: E402
-from filter_twin import (CYANO, FIRST_GUESS, T0_D, TRUE_GROWTH_FACTOR, TWIN_SETTINGS,  # noqa: E402
-                         truth_run)
 
 SPIN_UP_DAYS = 20
 

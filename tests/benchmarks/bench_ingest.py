@@ -32,9 +32,9 @@ import pandas as pd
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from monitor.config import parse_config  # noqa: E402
-from monitor.store.db import open_store  # noqa: E402
 from monitor.ingest.batches import SQLITE_CACHE_KIB  # noqa: E402
 from monitor.ingest.feeds.csv_folder import ingest_path  # noqa: E402
+from monitor.store.db import open_store  # noqa: E402
 from monitor.timeutil import db_times  # noqa: E402
 
 STATIONS = ("BX-1", "BX-2", "BX-3")

@@ -44,9 +44,9 @@ ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "tests" / "assimilation"))
 
+from model_scenarios import JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers, three_basin_spec  # noqa: E402
+
 from assimilation import integrate, model  # noqa: E402
-from model_scenarios import (JUNE_FIRST_2026, initial_ensemble, member_params, summer_drivers,  # noqa: E402
-                             three_basin_spec)
 
 FLOOR_UGL = 0.1
 

@@ -18,7 +18,7 @@ from sqlalchemy import create_engine, text
 from monitor.config import parse_config
 from monitor.store.db import connect, upgrade
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 NOW = dt.datetime(2026, 9, 1, 12, 0, tzinfo=UTC)
 
 BUOY_COLUMNS = {

@@ -9,10 +9,10 @@ import pandas as pd
 import pytest
 from sqlalchemy import Column, Integer, MetaData, Table, create_engine, insert, select
 
-from monitor.store.schema import UTCDateTime
 from monitor import timeutil as tu
+from monitor.store.schema import UTCDateTime
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 PLUS2 = dt.timezone(dt.timedelta(hours=2))
 
 

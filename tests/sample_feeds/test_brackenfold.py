@@ -13,7 +13,7 @@ import pandas as pd
 import pytest
 
 from monitor.config import load_config
-from monitor.ingest.batches import ingest_all
+from monitor.ingest.feeds.csv_folder import ingest_all
 from monitor.store.db import open_store
 from monitor.store.readings import readings_frame, rejected_rows_frame
 

@@ -16,7 +16,7 @@ from monitor.config import parse_config
 from monitor.store.db import open_store
 from monitor.store.schema import forecast_runs, forecast_values, ingest_batches, readings, water_bodies
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 ANALYSIS = dt.datetime(2026, 8, 10, 6, 0, tzinfo=UTC)
 NOW = ANALYSIS + dt.timedelta(hours=1)
 

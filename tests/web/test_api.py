@@ -75,7 +75,7 @@ def test_runs_lists_newest_first_with_links(client):
 def test_alert_events_after_an_evaluation_in_json_and_csv(app, client, config, engine):
     run_id = client.get("/api/v1/water-bodies/quillmere/runs?limit=1").get_json()["runs"][0]["id"]
     events = evaluate_run(engine, config, "quillmere", run_id, {"west": 6.2, "east": 0.8},
-                          now=dt.datetime(2026, 8, 10, 7, tzinfo=dt.timezone.utc))
+                          now=dt.datetime(2026, 8, 10, 7, tzinfo=dt.UTC))
     assert [(e["basin_id"], e["to_level"]) for e in events] == [("west", 1)]
     body = client.get("/api/v1/water-bodies/quillmere/alert-events").get_json()
     assert body["caution"] == CAUTION

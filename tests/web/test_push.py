@@ -57,8 +57,8 @@ def test_json_batch_is_stored_and_answered_with_its_counts(push_client, push_app
 
 
 def test_csv_batch_by_content_type(push_client):
-    csv = ("time,station,variable,value,unit\n"
-           "2026-07-01T01:00:00Z,FW-1,water_temperature,70.0,degF\n").encode()
+    csv = (b"time,station,variable,value,unit\n"
+           b"2026-07-01T01:00:00Z,FW-1,water_temperature,70.0,degF\n")
     resp = push_client.post(URL, data=csv, content_type="text/csv", headers=auth())
     assert resp.status_code == 200 and resp.get_json()["accepted"] == 1
 

@@ -14,8 +14,8 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import shutil
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable
 
 from sqlalchemy import select
 from sqlalchemy.engine import Engine

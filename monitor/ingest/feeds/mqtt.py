@@ -16,7 +16,7 @@ counted as duplicates, never stored twice.
 from __future__ import annotations
 
 import threading
-from typing import Callable
+from collections.abc import Callable
 
 import paho.mqtt.client as mqtt
 
@@ -73,7 +73,7 @@ class MqttFeed:
             self.on_batch(result)
 
     # control ----------------------------------------------------------
-    def start(self, timeout_s: float = 10.0) -> "MqttFeed":
+    def start(self, timeout_s: float = 10.0) -> MqttFeed:
         """Connect, subscribe and run the network loop in a background thread; wait for the subscription."""
         self.client.connect(self.feed.host, self.feed.port, keepalive=self.keepalive)
         self.client.loop_start()
@@ -87,7 +87,7 @@ class MqttFeed:
         self.client.disconnect()
         self.client.loop_stop()
 
-    def __enter__(self) -> "MqttFeed":
+    def __enter__(self) -> MqttFeed:
         return self.start()
 
     def __exit__(self, *exc) -> None:

@@ -9,7 +9,7 @@ from monitor.alerting.messages import render_alert, render_confirmation
 from monitor.alerting.subscriptions import Subscriber
 from monitor.config import parse_config
 
-T0 = dt.datetime(2026, 8, 1, 7, 0, tzinfo=dt.timezone.utc)
+T0 = dt.datetime(2026, 8, 1, 7, 0, tzinfo=dt.UTC)
 
 
 def make_config(tmp_path):

@@ -14,14 +14,14 @@ from aiosmtpd.controller import Controller
 from sqlalchemy import insert, select
 
 from monitor.alerting.caution import CAUTION
-from monitor.config import SmtpConfig, parse_config
-from monitor.store.db import open_store
 from monitor.alerting.notify import LEASE, build_message, retry_delay, send_due
 from monitor.alerting.outbox import enqueue, outbox_counts, requeue_dead
 from monitor.alerting.transports import MailboxTransport, SmtpTransport, transport_from_config
+from monitor.config import SmtpConfig, parse_config
+from monitor.store.db import open_store
 from monitor.store.schema import outbox, water_bodies
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 T0 = dt.datetime(2026, 8, 1, 7, 0, tzinfo=UTC)
 
 
@@ -251,8 +251,8 @@ def test_a_crash_while_sending_leaves_the_message_pending_for_after_the_lease(en
 
 def test_alert_change_reaches_the_subscriber_through_smtp(engine, tmp_path, smtp_server):
     from monitor.alerting.rules import evaluate_run
-    from monitor.store.schema import forecast_runs, forecast_values
     from monitor.alerting.subscriptions import sync_from_config
+    from monitor.store.schema import forecast_runs, forecast_values
 
     cfg = parse_config({
         "service": {"database": f"sqlite:///{tmp_path / 'notify.sqlite'}", "base_url": "http://bloomline.test"},

@@ -7,15 +7,15 @@ import datetime as dt
 import pytest
 from sqlalchemy import func, insert, select
 
-from monitor.alerting.rules import decide, evaluate_run, target_level
 from monitor.alerting.caution import CAUTION
+from monitor.alerting.frameworks import FRAMEWORKS
+from monitor.alerting.rules import decide, evaluate_run, target_level
+from monitor.alerting.subscriptions import sync_from_config
 from monitor.config import parse_config
 from monitor.store.db import open_store
-from monitor.alerting.frameworks import FRAMEWORKS
 from monitor.store.schema import alert_events, alert_status, forecast_runs, forecast_values, outbox, water_bodies
-from monitor.alerting.subscriptions import sync_from_config
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 T0 = dt.datetime(2026, 8, 1, 6, 0, tzinfo=UTC)
 DAY = dt.timedelta(days=1)
 # WHO (2003) recreational guidance levels: 10 and 50 µg/L chlorophyll-a with cyanobacterial
@@ -65,7 +65,7 @@ def test_escalation_carries_probability_and_observed_value():
 
 def test_clearing_waits_for_the_configured_number_of_quiet_cycles():
     level, quiet, changes = 1, 0, []
-    for cycle in range(4):
+    for _cycle in range(4):
         d = rule(level, quiet, {1: 0.1}, observed=3.0, clear_after=3)
         level, quiet = d.level, d.quiet_cycles
         changes.append(d.changed)

@@ -6,8 +6,6 @@ import datetime as dt
 
 import pytest
 
-from monitor.config import parse_config
-from monitor.store.db import open_store
 from monitor.alerting.subscriptions import (
     SubscriptionError,
     by_token,
@@ -19,8 +17,10 @@ from monitor.alerting.subscriptions import (
     sync_from_config,
     unsubscribe,
 )
+from monitor.config import parse_config
+from monitor.store.db import open_store
 
-T0 = dt.datetime(2026, 6, 1, tzinfo=dt.timezone.utc)
+T0 = dt.datetime(2026, 6, 1, tzinfo=dt.UTC)
 
 
 def make_config(tmp_path, subscribers):

@@ -20,10 +20,10 @@ import pytest
 from click.testing import CliRunner
 from sqlalchemy import func, select
 
-from monitor.store import schema
 from monitor.alerting.caution import CAUTION
 from monitor.app.cli import main
 from monitor.config import load_config
+from monitor.store import schema
 from monitor.store.db import connect
 from monitor.store.readings import readings_frame
 

@@ -50,7 +50,7 @@ def setup(tmp_path):
     (tmp_path / "bloomline.toml").write_text(TOML)
     drop = tmp_path / "drop"
     drop.mkdir()
-    for k, day in enumerate(("01", "02")):
+    for _k, day in enumerate(("01", "02")):
         rows = [(t, 5.0 + 0.01 * i, 1.0, 18.0) for i, t in enumerate(quarter_hours(f"2026-07-{day} 00:00", 4))]
         (drop / f"2026-07-{day}.csv").write_bytes(buoy_csv(rows))
     return tmp_path / "bloomline.toml", drop

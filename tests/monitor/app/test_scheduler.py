@@ -21,7 +21,7 @@ def _service(tmp_path) -> Service:
     shutil.copytree(SAMPLE / "lab", tmp_path / "feeds" / "lab")
     shutil.copyfile(SAMPLE / "bloomline.toml", tmp_path / "bloomline.toml")
     config = load_config(tmp_path / "bloomline.toml")
-    now = dt.datetime(2026, 11, 2, tzinfo=dt.timezone.utc)
+    now = dt.datetime(2026, 11, 2, tzinfo=dt.UTC)
     return Service(config, transport=MailboxTransport(tmp_path / "mailbox"), clock=lambda: now)
 
 

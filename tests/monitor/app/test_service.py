@@ -15,7 +15,7 @@ from monitor.config import load_config
 from monitor.forecasting import cycle
 
 SAMPLE = Path(__file__).resolve().parents[3] / "sample_feeds"
-ANALYSIS = dt.datetime(2026, 6, 2, tzinfo=dt.timezone.utc)
+ANALYSIS = dt.datetime(2026, 6, 2, tzinfo=dt.UTC)
 
 
 def _service(tmp_path) -> Service:

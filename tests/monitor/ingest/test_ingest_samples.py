@@ -9,8 +9,8 @@ import pandas as pd
 import pytest
 
 from monitor.config import load_config
-from monitor.store.db import open_store
 from monitor.ingest.feeds.csv_folder import feed_files, ingest_all, ingest_path
+from monitor.store.db import open_store
 from monitor.store.readings import readings_frame, rejected_rows_frame
 
 SAMPLES = Path(__file__).resolve().parents[3] / "sample_feeds"

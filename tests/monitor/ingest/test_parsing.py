@@ -62,14 +62,14 @@ def test_below_detection_reject_keeps_the_reason(config):
 
 def test_every_kind_of_bad_record_is_rejected_with_line_and_reason(config):
     feed = config.feed("buoys")
-    payload = ("timestamp,chl,pc,temp\n"
-               "2026-07-01 00:00,1,2,20\n"          # 2 good
-               "2026-07-01 00:15,1,2\n"             # 3 wrong field count
-               "2026-13-01 00:30,1,2,20\n"          # 4 bad time
-               "timestamp,chl,pc,temp\n"            # 5 repeated header
-               "2026-07-01 00:45,abc,2,20\n"        # 6 non-numeric chl (pc, temp kept)
-               "2026-07-01 01:00,1e999,2,20\n"      # 7 overflow
-               "2026-07-01 01:15,1,2,20;DROP TABLE readings\n").encode()  # 8 injection in a value
+    payload = (b"timestamp,chl,pc,temp\n"
+               b"2026-07-01 00:00,1,2,20\n"          # 2 good
+               b"2026-07-01 00:15,1,2\n"             # 3 wrong field count
+               b"2026-13-01 00:30,1,2,20\n"          # 4 bad time
+               b"timestamp,chl,pc,temp\n"            # 5 repeated header
+               b"2026-07-01 00:45,abc,2,20\n"        # 6 non-numeric chl (pc, temp kept)
+               b"2026-07-01 01:00,1e999,2,20\n"      # 7 overflow
+               b"2026-07-01 01:15,1,2,20;DROP TABLE readings\n")  # 8 injection in a value
     p = parse_payload(payload, feed, config, origin="d/FW-1/x.csv", now=NOW)
     by_line = {r.line: r.reason for r in p.rejected}
     assert "expected 4 fields, got 3" == by_line[3]
@@ -84,10 +84,10 @@ def test_every_kind_of_bad_record_is_rejected_with_line_and_reason(config):
 
 def test_unknown_station_variable_and_unit_are_rejected(config):
     feed = config.feed("lab")
-    payload = ("sampled_at,site,variable,value,unit\n"
-               "2026-07-01 10:00,NOWHERE,nitrate,0.3,mg/L\n"
-               "2026-07-01 10:00,FW-LAB,turbidity,3,NTU\n"
-               "2026-07-01 10:00,FW-LAB,nitrate,3,furlongs\n").encode()
+    payload = (b"sampled_at,site,variable,value,unit\n"
+               b"2026-07-01 10:00,NOWHERE,nitrate,0.3,mg/L\n"
+               b"2026-07-01 10:00,FW-LAB,turbidity,3,NTU\n"
+               b"2026-07-01 10:00,FW-LAB,nitrate,3,furlongs\n")
     p = parse_payload(payload, feed, config, now=NOW)
     reasons = [r.reason for r in p.rejected]
     assert reasons[0] == "unknown station 'NOWHERE'"
@@ -171,12 +171,12 @@ def test_weather_forecast_rows_carry_their_issue_time(config):
 
 def test_variable_names_of_the_feed_and_case_variants_map_to_canonical_names(config):
     feed = dataclasses.replace(config.feed("lab"), variable_names={"NO3-N": "nitrate", "Chl-a": "chlorophyll_a"})
-    payload = ("sampled_at,site,variable,value,unit\n"
-               "2026-07-01 10:00,FW-LAB,no3-n,0.2,mg/L\n"
-               "2026-07-01 10:00,FW-LAB,Chl-a,7,ug/L\n"
-               "2026-07-01 10:00,FW-LAB,Total Phosphorus,30,ug/L\n"
-               "2026-07-01 10:00,FW-LAB,SRP,4,ug/L\n"
-               "2026-07-01 10:00,FW-LAB,chlorophyll,4,ug/L\n").encode()
+    payload = (b"sampled_at,site,variable,value,unit\n"
+               b"2026-07-01 10:00,FW-LAB,no3-n,0.2,mg/L\n"
+               b"2026-07-01 10:00,FW-LAB,Chl-a,7,ug/L\n"
+               b"2026-07-01 10:00,FW-LAB,Total Phosphorus,30,ug/L\n"
+               b"2026-07-01 10:00,FW-LAB,SRP,4,ug/L\n"
+               b"2026-07-01 10:00,FW-LAB,chlorophyll,4,ug/L\n")
     p = parse_payload(payload, feed, config, now=NOW)
     assert list(p.variable) == ["nitrate", "chlorophyll_a", "total_phosphorus", "srp"]
     assert p.rejected[0].reason.startswith("unknown variable 'chlorophyll'")

@@ -20,9 +20,9 @@ import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from monitor.store.db import connect, upgrade
 from monitor.ingest.batches import ingest_bytes
 from monitor.ingest.parsing import parse_payload
+from monitor.store.db import connect, upgrade
 from monitor.store.readings import readings_frame
 from tests.monitor.conftest import NOW, fernwater
 

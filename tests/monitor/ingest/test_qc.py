@@ -18,7 +18,7 @@ from monitor.timeutil import NS_PER_HOUR
 
 def test_spike_worked_case_from_the_dissolved_oxygen_manual_definition():
     # Spike reference = mean of the two neighbours (QARTOD DO manual 2018, test 8);
-    # worked case in shared/REFERENCES.md: the spike's neighbours are suspect too.
+    # worked case in docs/references.md: the spike's neighbours are suspect too.
     values = np.array([1, 1, 5, 1, 1, 1, 1.2, 1])
     assert qc.spike(values, suspect=1.5, fail=3.0).tolist() == [2, 3, 4, 3, 1, 1, 1, 2]
 

@@ -11,7 +11,7 @@ from sqlalchemy import insert
 from monitor.store import schema
 from monitor.store.daily import daily_means
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 ANCHOR = dt.datetime(2026, 6, 10, 6, 0, tzinfo=UTC)
 
 

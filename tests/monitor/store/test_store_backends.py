@@ -9,8 +9,13 @@ import pandas as pd
 import pytest
 
 from monitor.ingest.batches import ingest_bytes
-from monitor.store.readings import (batches_frame, ingest_summary, latest_driver_forecast, readings_frame,
-                              rejected_rows_frame)
+from monitor.store.readings import (
+    batches_frame,
+    ingest_summary,
+    latest_driver_forecast,
+    readings_frame,
+    rejected_rows_frame,
+)
 from tests.monitor.conftest import NOW, UTC, buoy_csv, fernwater, quarter_hours
 
 pytestmark = pytest.mark.postgres
@@ -111,9 +116,9 @@ def test_readings_frame_refuses_naive_times(tmp_path, engine):
 def test_hostile_text_is_stored_verbatim_as_data(tmp_path, engine):
     config = fernwater(tmp_path)
     feed = config.feed("lab")
-    payload = ("sampled_at,site,variable,value,unit\n"
-               "2026-07-01 10:00,FW-LAB'); DROP TABLE readings;--,nitrate,1,mg/L\n"
-               "2026-07-01 10:00,FW-LAB,nitrate,1\x00,mg/L\n").encode()
+    payload = (b"sampled_at,site,variable,value,unit\n"
+               b"2026-07-01 10:00,FW-LAB'); DROP TABLE readings;--,nitrate,1,mg/L\n"
+               b"2026-07-01 10:00,FW-LAB,nitrate,1\x00,mg/L\n")
     r = ingest_bytes(engine, config, feed, payload, "lab/x.csv", now=NOW)
     assert r.rejected == 2
     raw = rejected_rows_frame(engine)["raw"].tolist()

@@ -3,10 +3,10 @@
 from __future__ import annotations
 
 import csv
-from contextlib import closing
 import datetime as dt
 import json
 import sqlite3
+from contextlib import closing
 
 import numpy as np
 import pandas as pd
@@ -19,7 +19,7 @@ from monitor.store import schema
 from monitor.store.db import open_store
 from monitor.verification.replay import analysis_days, replay
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 FIRST = dt.datetime(2026, 6, 1, 6, 0, tzinfo=UTC)
 
 
