@@ -23,6 +23,7 @@ from monitor.ingest.feeds.csv_folder import ingest_all
 from monitor.store import runs as store
 from monitor.store.db import open_store
 from monitor.timeutil import now_utc
+from monitor.verification.live import score_recent
 
 log = logging.getLogger("bloomline")
 
@@ -76,7 +77,19 @@ class Service:
                 summaries[out.water_body_id] = cycle.record(self.engine, self.config, out, now=self.clock())
             except Exception as exc:  # noqa: BLE001
                 summaries[out.water_body_id] = _failed(out.water_body_id, analysis, "record", exc)
+                continue
+            self.verify(out.water_body_id, analysis)
         return [summaries[wb.id] for wb in bodies]
+
+    def verify(self, water_body_id: str, analysis: dt.datetime) -> None:
+        """Score the recent runs of a water body against the readings now stored (the live record).
+
+        A failure is logged and leaves the cycle's result alone: verification never stops a forecast.
+        """
+        try:
+            score_recent(self.engine, self.config, self.config.water_body(water_body_id), analysis)
+        except Exception:  # noqa: BLE001
+            log.exception("verification of %s at %s failed", water_body_id, analysis.isoformat())
 
     def compute_many(self, inputs: Sequence[cycle.CycleInputs]) -> list[cycle.CycleOutputs]:
         """Run :func:`monitor.forecasting.cycle.compute` for each input: in-process, or on a Dask cluster.

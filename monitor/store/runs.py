@@ -107,6 +107,7 @@ def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datet
         if old is not None:
             conn.execute(delete(vals).where(vals.c.run_id == old))
             conn.execute(delete(schema.forecast_members).where(schema.forecast_members.c.run_id == old))
+            conn.execute(delete(schema.forecast_scores).where(schema.forecast_scores.c.run_id == old))
             conn.execute(update(runs).where(runs.c.id == old).values(
                 status=status, message=message, diagnostics=diagnostics, created_at=now or now_utc()))
             run_id = old

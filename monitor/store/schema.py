@@ -183,6 +183,37 @@ forecast_members = Table(
     Column("data", LargeBinary, nullable=False),      # little-endian float32 (K + 1, M): members' daily means
 )
 
+forecast_scores = Table(
+    "forecast_scores", metadata,
+    Column("run_id", Integer, ForeignKey("forecast_runs.id"), primary_key=True),
+    Column("basin_id", String(64), primary_key=True),
+    Column("quantity", String(64), primary_key=True),
+    Column("lead_days", SmallInteger, primary_key=True),
+    Column("forecaster", String(32), primary_key=True),
+    Column("water_body_id", String(64), nullable=False),
+    Column("origin_utc", UTCDateTime, nullable=False),
+    Column("valid_utc", UTCDateTime, nullable=False),
+    Column("variable", String(64), nullable=False),
+    Column("observed", Float, nullable=False),       # daily mean of the QC-passed readings [µg/L]
+    Column("observed_n", Integer, nullable=False),
+    Column("members", SmallInteger, nullable=False),
+    Column("crps", Float, nullable=False),
+    Column("crps_fair", Float, nullable=True),
+    Column("q05", Float, nullable=False),
+    Column("q25", Float, nullable=False),
+    Column("median", Float, nullable=False),
+    Column("q75", Float, nullable=False),
+    Column("q95", Float, nullable=False),
+    Column("log_mean", Float, nullable=False),
+    Column("log_sd", Float, nullable=True),
+    Column("rank", SmallInteger, nullable=False),
+    Column("p_level_1", Float, nullable=True),
+    Column("p_level_2", Float, nullable=True),
+    Column("p_level_3", Float, nullable=True),
+    Column("p_level_4", Float, nullable=True),
+    Index("ix_forecast_scores_wb_valid", "water_body_id", "valid_utc"),
+)
+
 alert_status = Table(
     "alert_status", metadata,
     Column("water_body_id", String(64), primary_key=True),

@@ -31,6 +31,7 @@ from monitor.store import schema
 from monitor.timeutil import UTC
 from monitor.verification import summary
 from monitor.verification.pairs import Pairs, water_body_pairs
+from monitor.verification.records import pair_records
 from monitor.verification.replay import analysis_days, replay
 from monitor.verification.warnings import warning_table
 
@@ -41,6 +42,7 @@ class HindcastResult:
 
     days: list[dt.datetime]
     pairs: Pairs
+    records: pd.DataFrame
     by_lead: pd.DataFrame
     by_basin: pd.DataFrame
     skill_by_lead: pd.DataFrame
@@ -97,10 +99,11 @@ def run_hindcast(config: Config, engine: Engine, days: list[dt.datetime], *, onl
     pairs = Pairs.concat(parts)
     levels = {wb.id: tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels) for wb in bodies}
     warn = {wb.id: wb.alerts.warn_probability for wb in bodies}
+    records = pair_records(pairs, levels)
     return HindcastResult(
-        days=days, pairs=pairs,
-        by_lead=summary.score_table(pairs, ["quantity", "lead_days"]),
-        by_basin=summary.score_table(pairs, ["water_body", "basin_id", "quantity", "lead_days"], levels, warn),
-        skill_by_lead=summary.skill_table(pairs, ["quantity", "lead_days"]),
+        days=days, pairs=pairs, records=records,
+        by_lead=summary.score_table(records, ["quantity", "lead_days"]),
+        by_basin=summary.score_table(records, ["water_body", "basin_id", "quantity", "lead_days"], levels, warn),
+        skill_by_lead=summary.skill_table(records, ["quantity", "lead_days"]),
         warnings=warning_table(bodies, replayed, pairs.observed, pairs.outlooks),
         statuses=statuses, seconds=time.perf_counter() - started)

@@ -85,8 +85,9 @@ def observed_daily(engine: Engine, config: Config, wb: WaterBodyConfig, anchor, 
 
 
 def water_body_pairs(runs_engine: Engine, live: Engine, config: Config, wb: WaterBodyConfig, *,
-                     first=None, last=None, progress: Callable[[], None] | None = None) -> Pairs:
-    """Pairs of ``wb``'s runs stored in ``runs_engine`` against the readings of ``live``."""
+                     first=None, last=None, until=None, progress: Callable[[], None] | None = None) -> Pairs:
+    """Pairs of ``wb``'s runs stored in ``runs_engine`` (analysis in [first, last]) against the readings of
+    ``live`` (in day windows ending at or before ``until``, when given)."""
     runs = stored_runs(runs_engine, wb.id, first, last)
     thresholds = tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels)
     members = load_forecast_members(runs_engine, runs.id.tolist())
@@ -101,9 +102,10 @@ def water_body_pairs(runs_engine: Engine, live: Engine, config: Config, wb: Wate
         origin = pd.Timestamp(origin)
         tod = int((origin - origin.normalize()).total_seconds())
         if tod not in cache:
+            end = pd.Timestamp(runs.analysis_utc.iloc[-1]) + (wb.alerts.horizon_days + 1) * DAY
             cache[tod] = observed_daily(live, config, wb, origin.to_pydatetime(),
                                         pd.Timestamp(runs.analysis_utc.iloc[0]) - DAY,
-                                        pd.Timestamp(runs.analysis_utc.iloc[-1]) + (wb.alerts.horizon_days + 1) * DAY)
+                                        end if until is None else min(end, pd.Timestamp(until)))
         daily = cache[tod]
         issued = {(b, q, f): (v, a) for b, q, f, v, a in by_run.get(run_id, [])}
         for (basin, quantity, forecaster), (variable, arr) in issued.items():

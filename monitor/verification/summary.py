@@ -1,13 +1,13 @@
-"""Scores of paired forecasts, per forecaster, by lead day (and basin), with skill against the baselines.
+"""Scores summarised from score records, per forecaster, by lead day (and basin), with skill.
 
 The point forecast of an ensemble is its median (the median of the log is the
 log of the median, so MAE of ln and the log bias need no back-transform
 correction). Interval coverage uses the members' central 50 % and 90 %
 intervals; the spread-to-error ratio is computed in natural-log space, where
-chlorophyll-a errors are close to symmetric. Alert-level scores use the
-probability that the day's value reaches the level: the fraction of members
-whose daily mean reaches it, the same estimator for every forecaster.
-Methods: :mod:`assimilation.scores` and :mod:`assimilation.probability_scores`.
+chlorophyll-a errors are close to symmetric, with the finite-ensemble factor
+(M + 1)/M. Alert-level scores use the probability that the day's value
+reaches the level (:mod:`monitor.verification.records`). Methods:
+:mod:`assimilation.scores` and :mod:`assimilation.probability_scores`.
 """
 
 from __future__ import annotations
@@ -16,44 +16,44 @@ import numpy as np
 import pandas as pd
 
 from assimilation import probability_scores as ps
-from assimilation import scores
 from assimilation.scores import LOG_FLOOR_UGL
-from monitor.verification.pairs import BASELINES, FORECASTERS, Pairs
+from monitor.verification.pairs import BASELINES, FORECASTERS
+from monitor.verification.records import MAX_LEVELS
 
 
-def _stack(members: list[np.ndarray]) -> np.ndarray:
-    """Member arrays of equal size → (M, N); arrays of unequal size are padded by their quantiles."""
-    sizes = {m.size for m in members}
-    if len(sizes) == 1:
-        return np.stack(members, axis=1)
-    m_max = max(sizes)
-    q = (np.arange(m_max) + 0.5) / m_max
-    return np.stack([np.quantile(m, q) if m.size != m_max else m for m in members], axis=1)
+def _ln(x) -> np.ndarray:
+    return np.log(np.maximum(np.asarray(x, dtype=float), LOG_FLOOR_UGL))
 
 
-def ensemble_scores(E: np.ndarray, y: np.ndarray) -> dict[str, float]:
-    """Scores of an ensemble ``E`` (M, N) [µg/L] against observations ``y`` (N,) [µg/L]."""
-    median = np.median(E, axis=0)
-    logE = np.log(np.maximum(E, LOG_FLOOR_UGL))
-    logy = np.log(np.maximum(y, LOG_FLOOR_UGL))
+def ensemble_scores(r: pd.DataFrame) -> dict[str, float]:
+    """Scores of one forecaster's records ``r`` (one group)."""
+    y = r.observed.to_numpy(dtype=float)
+    err_ln = _ln(r["median"]) - _ln(y)
+    M = r["members"].to_numpy(dtype=float)
+    multi = M > 1
     out = {
-        "n": int(y.size),
-        "crps": float(np.mean(scores.crps_ensemble(E, y))),
-        "crps_fair": float(np.mean(scores.crps_ensemble(E, y, fair=True))) if E.shape[0] > 1 else float("nan"),
-        "mae": scores.mean_absolute_error(median, y),
-        "mae_ln": scores.mean_absolute_log_error(median, y),
-        "bias_ln": scores.mean_log_bias(median, y),
-        "coverage_50": scores.ensemble_interval_coverage(E, y, 0.5) if E.shape[0] > 1 else float("nan"),
-        "coverage_90": scores.ensemble_interval_coverage(E, y, 0.9) if E.shape[0] > 1 else float("nan"),
-        "spread_error_ln": scores.spread_error_ratio(logE, logy) if E.shape[0] > 1 else float("nan"),
+        "n": int(len(r)),
+        "crps": float(r.crps.mean()),
+        "crps_fair": float(r.crps_fair[multi].mean()) if multi.any() else float("nan"),
+        "mae": float(np.mean(np.abs(r["median"].to_numpy(dtype=float) - y))),
+        "mae_ln": float(np.mean(np.abs(err_ln))),
+        "bias_ln": float(np.mean(err_ln)),
+        "coverage_50": float(np.mean((r.q25 <= y) & (y <= r.q75))) if multi.any() else float("nan"),
+        "coverage_90": float(np.mean((r.q05 <= y) & (y <= r.q95))) if multi.any() else float("nan"),
+        "spread_error_ln": float("nan"),
     }
+    if multi.any():
+        rm = r[multi]
+        spread = np.sqrt(np.mean(rm.log_sd.to_numpy(dtype=float) ** 2 * (M[multi] + 1) / M[multi]))
+        rmse = np.sqrt(np.mean((rm.log_mean.to_numpy(dtype=float) - _ln(rm.observed)) ** 2))
+        out["spread_error_ln"] = float(spread / rmse) if rmse > 0 else float("inf")
     return out
 
 
-def level_scores(E: np.ndarray, y: np.ndarray, threshold: float, warn_probability: float) -> dict[str, float]:
+def level_scores(r: pd.DataFrame, level: int, threshold: float, warn_probability: float) -> dict[str, float]:
     """Brier score with Murphy's decomposition, ROC area and contingency counts for one level."""
-    p = (E >= threshold).mean(axis=0)
-    o = y >= threshold
+    p = r[f"p_level_{level}"].to_numpy(dtype=float)
+    o = r.observed.to_numpy(dtype=float) >= threshold
     dec = ps.brier_decomposition(p, o)
     counts = ps.contingency_counts(p, o, warn_probability)
     both = bool(o.any() and (~o).any())
@@ -63,54 +63,59 @@ def level_scores(E: np.ndarray, y: np.ndarray, threshold: float, warn_probabilit
             "correct_negatives": counts.correct_negatives}
 
 
-def _groups(meta: pd.DataFrame, by: list[str]):
-    if not len(meta):
-        return []
-    return meta.groupby(by, sort=True).indices.items()
-
-
-def score_table(pairs: Pairs, by: list[str], levels: dict[str, tuple[float, ...]] | None = None,
+def score_table(records: pd.DataFrame, by: list[str], levels: dict[str, tuple[float, ...]] | None = None,
                 warn_probability: dict[str, float] | None = None) -> pd.DataFrame:
     """One row per (group of ``by``, forecaster): the ensemble scores and, per level, its scores.
 
-    ``levels`` maps a water body to its thresholds [µg/L]; level scores are
-    given where every pair of the group shares one water body's thresholds.
+    Level scores are given where every record of the group belongs to one water body.
     """
     rows = []
-    for key, index in _groups(pairs.meta, by):
+    if records.empty:
+        return pd.DataFrame()
+    for key, group in records.groupby(by, sort=True):
         key = key if isinstance(key, tuple) else (key,)
-        wbs = set(pairs.meta.water_body.iloc[index])
+        wbs = set(group.water_body)
         for name in FORECASTERS:
-            have = [i for i in index if pairs.members[name][i] is not None]
-            if not have:
+            r = group[group.forecaster == name]
+            if r.empty:
                 continue
-            E = _stack([pairs.members[name][i] for i in have])
-            y = pairs.meta.observed.to_numpy(dtype=float)[have]
-            row = dict(zip(by, key), forecaster=name, **ensemble_scores(E, y))
+            row = dict(zip(by, key), forecaster=name, **ensemble_scores(r))
             if levels and len(wbs) == 1:
                 wb = next(iter(wbs))
-                for lv, thr in enumerate(levels.get(wb, ()), start=1):
-                    for metric, value in level_scores(E, y, thr, (warn_probability or {}).get(wb, 0.5)).items():
+                for lv, thr in enumerate(levels.get(wb, ())[:MAX_LEVELS], start=1):
+                    for metric, value in level_scores(r, lv, thr, (warn_probability or {}).get(wb, 0.5)).items():
                         row[f"level_{lv}_{metric}"] = value
             rows.append(row)
     return pd.DataFrame(rows)
 
 
-def skill_table(pairs: Pairs, by: list[str]) -> pd.DataFrame:
+def skill_table(records: pd.DataFrame, by: list[str]) -> pd.DataFrame:
     """CRPS skill of Bloomline against each baseline, ``1 − CRPS/CRPS_ref``, on the pairs both forecast."""
+    if records.empty:
+        return pd.DataFrame()
+    key = ["run_id", "water_body", "basin_id", "quantity", "lead_days"]
+    bl = records[records.forecaster == "bloomline"].set_index(key)
     rows = []
-    for key, index in _groups(pairs.meta, by):
-        key = key if isinstance(key, tuple) else (key,)
-        y = pairs.meta.observed.to_numpy(dtype=float)
-        for ref in BASELINES:
-            both = [i for i in index if pairs.members[ref][i] is not None]
-            if not both:
-                continue
-            crps = {}
-            for name in ("bloomline", ref):
-                E = _stack([pairs.members[name][i] for i in both])
-                crps[name] = float(np.mean(scores.crps_ensemble(E, y[both])))
-            skill = 1.0 - crps["bloomline"] / crps[ref] if crps[ref] > 0 else float("nan")
-            rows.append(dict(zip(by, key), reference=ref, n=len(both), crps_bloomline=crps["bloomline"],
-                             crps_reference=crps[ref], crps_skill=skill))
+    for ref in BASELINES:
+        other = records[records.forecaster == ref].set_index(key)[["crps"]].rename(columns={"crps": "crps_ref"})
+        both = bl[["crps", *[c for c in by if c not in key]]].join(other, how="inner")
+        if both.empty:
+            continue
+        both = both.reset_index()
+        for k, g in both.groupby(by, sort=True):
+            k = k if isinstance(k, tuple) else (k,)
+            ref_crps = float(g.crps_ref.mean())
+            rows.append(dict(zip(by, k), reference=ref, n=len(g), crps_bloomline=float(g.crps.mean()),
+                             crps_reference=ref_crps,
+                             crps_skill=1.0 - float(g.crps.mean()) / ref_crps if ref_crps > 0 else float("nan")))
     return pd.DataFrame(rows)
+
+
+def rank_histogram(records: pd.DataFrame, forecaster: str = "bloomline") -> list[int]:
+    """Counts of the observation's rank among the members (Hamill 2001), for the commonest member count."""
+    r = records[records.forecaster == forecaster]
+    if r.empty:
+        return []
+    M = int(r["members"].mode().iloc[0])
+    ranks = r[r["members"] == M]["rank"].to_numpy(dtype=int)
+    return np.bincount(ranks, minlength=M + 1).tolist()
