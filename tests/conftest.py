@@ -9,9 +9,15 @@ service is a failure.
 from __future__ import annotations
 
 import os
+import shutil
 import socket
+from pathlib import Path
 
 import pytest
+
+from monitor.config import load_config
+from monitor.ingest.feeds.csv_folder import ingest_feed
+from monitor.store.db import open_store
 
 POSTGRES_URL = os.environ.get("BLOOMLINE_TEST_POSTGRES_URL", "postgresql+psycopg://postgres@127.0.0.1:5432/test")
 MQTT_HOST = os.environ.get("BLOOMLINE_TEST_MQTT_HOST", "127.0.0.1")
@@ -49,3 +55,22 @@ def mqtt_address() -> tuple[str, int]:
     if not _reachable(MQTT_HOST, MQTT_PORT):
         _absent(f"the MQTT broker at {MQTT_HOST}:{MQTT_PORT}")
     return MQTT_HOST, MQTT_PORT
+
+
+# ---------------------------------------------------------------- invented scenarios
+
+BRACKENFOLD = Path(__file__).resolve().parents[1] / "sample_feeds" / "brackenfold"
+
+
+@pytest.fixture(scope="module")
+def brackenfold(tmp_path_factory):
+    """(config, engine, folder) of a store with both Brackenfold seasons ingested."""
+    folder = tmp_path_factory.mktemp("brackenfold")
+    shutil.copyfile(BRACKENFOLD / "bloomline.toml", folder / "bloomline.toml")
+    shutil.copytree(BRACKENFOLD / "data", folder / "data")
+    config = load_config(folder / "bloomline.toml")
+    engine = open_store(config.service.database_url)
+    results = ingest_feed(engine, config, config.feed("brackenfold-lab"))
+    assert sum(r.accepted for r in results) == 880
+    yield config, engine, folder
+    engine.dispose()

@@ -17,7 +17,7 @@ from monitor.verification.hindcast import run_hindcast
 from monitor.verification.live import record_summary, score_recent, stored_records
 from monitor.verification.replay import DiscardTransport, analysis_days
 
-UTC = dt.timezone.utc
+UTC = dt.UTC
 FIRST = dt.datetime(2026, 7, 1, 6, 0, tzinfo=UTC)
 KEY = ["origin_utc", "basin_id", "quantity", "lead_days", "forecaster"]
 
