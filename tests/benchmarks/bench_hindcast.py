@@ -1,0 +1,102 @@
+"""Benchmark: a hindcast of an invented scenario, timed, with its scores by lead day.
+
+Scenarios: ``demo`` — the demo season (Corrisdale Reservoir and Sorrel Lake,
+``sample_feeds/``), the truth of Bloomline's own model family; ``brackenfold``
+— Brackenfold Mere (``sample_feeds/brackenfold/``), two seasons of daily lab
+chlorophyll-a whose truth is a nutrient–phytoplankton–zooplankton model with
+storms, not Bloomline's. The feeds are ingested into a fresh store in a
+temporary folder, then ``run_hindcast`` replays every day (Bloomline, the four
+baselines, all scores).
+
+Prints one JSON line per scenario: ``scenario``, ``seconds`` (the hindcast,
+after the ingest), ``ingest_seconds``, ``origins``, ``pairs``, and per
+quantity ``crps`` (per forecaster, leads 1–7, µg/L), Bloomline's
+``skill_vs_persistence_ensemble`` and ``skill_vs_persistence``,
+``coverage_90``, ``bias_ln`` and ``mae_ln`` per lead, and ``mae_ln_persistence``.
+Goal for the demo: under 3 minutes on 2 cores.
+
+Run: ``python tests/benchmarks/bench_hindcast.py [--scenario demo|brackenfold|both]``
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import shutil
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+import datetime as dt  # noqa: E402
+
+from monitor.app.demo import prepare_workdir  # noqa: E402
+from monitor.config import load_config  # noqa: E402
+from monitor.ingest.feeds.csv_folder import ingest_all  # noqa: E402
+from monitor.store.db import open_store  # noqa: E402
+from monitor.verification.hindcast import default_days, run_hindcast  # noqa: E402
+
+
+def _setup(scenario: str, folder: Path):
+    if scenario == "demo":
+        config_path = prepare_workdir(folder, ROOT / "sample_feeds")
+    else:
+        shutil.copyfile(ROOT / "sample_feeds" / "brackenfold" / "bloomline.toml", folder / "bloomline.toml")
+        shutil.copytree(ROOT / "sample_feeds" / "brackenfold" / "data", folder / "data")
+        config_path = folder / "bloomline.toml"
+    return load_config(config_path)
+
+
+def _table(result) -> dict:
+    out = {}
+    by, skill = result.by_lead, result.skill_by_lead
+    for quantity in sorted(set(by.quantity)):
+        q = by[by.quantity == quantity]
+        s = skill[skill.quantity == quantity]
+        bl = q[q.forecaster == "bloomline"].sort_values("lead_days")
+        out[quantity] = {
+            "crps": {f: [round(v, 4) for v in g.sort_values("lead_days").crps] for f, g in q.groupby("forecaster")},
+            "skill_vs_persistence_ensemble": [round(v, 3) for v in
+                                              s[s.reference == "persistence_ensemble"].sort_values("lead_days").crps_skill],
+            "skill_vs_persistence": [round(v, 3) for v in s[s.reference == "persistence"].sort_values("lead_days").crps_skill],
+            "coverage_90": [round(v, 3) for v in bl.coverage_90],
+            "bias_ln": [round(v, 3) for v in bl.bias_ln],
+            "mae_ln": [round(v, 3) for v in bl.mae_ln],
+            "mae_ln_persistence": [round(v, 3) for v in
+                                   q[q.forecaster == "persistence"].sort_values("lead_days").mae_ln],
+        }
+    return out
+
+
+def run(scenario: str) -> dict:
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        config = _setup(scenario, folder)
+        engine = open_store(config.service.database_url)
+        t0 = time.perf_counter()
+        ingest_all(engine, config)
+        ingest_s = time.perf_counter() - t0
+        cycle_at = dt.time.fromisoformat(config.schedule.cycle_at_utc)
+        days = default_days(engine, config, None, cycle_at)
+        t0 = time.perf_counter()
+        result = run_hindcast(config, engine, days)
+        seconds = time.perf_counter() - t0
+        engine.dispose()
+    return {"scenario": scenario, "seconds": round(seconds, 1), "ingest_seconds": round(ingest_s, 1),
+            "origins": len(days), "pairs": int(len(result.pairs.meta)), "statuses": result.statuses,
+            **_table(result)}
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--scenario", choices=("demo", "brackenfold", "both"), default="both")
+    args = parser.parse_args()
+    for scenario in (("demo", "brackenfold") if args.scenario == "both" else (args.scenario,)):
+        print(json.dumps(run(scenario)), flush=True)
+
+
+if __name__ == "__main__":
+    main()
