@@ -34,6 +34,9 @@ class DailyForecast:
     quantiles: np.ndarray
     exceedance: np.ndarray
     members: np.ndarray
+    horizon_exceedance: np.ndarray | None = None
+    """(B, L): probability of reaching each threshold on any day 1..K — the fraction of members
+    that do (not the largest daily probability, which is only a lower bound of it)."""
 
 
 def daily_statistics(times_d: np.ndarray, values: np.ndarray, t0_d: float, horizon_days: int,
@@ -71,4 +74,22 @@ def daily_statistics(times_d: np.ndarray, values: np.ndarray, t0_d: float, horiz
         quantiles=np.quantile(mean_per_member, QUANTILES, axis=1),
         exceedance=exceed,
         members=mean_per_member,
+        horizon_exceedance=(max_per_member[1:].max(axis=0)[..., None] >= thr).mean(axis=0),
+    )
+
+
+def member_statistics(day_end_d: np.ndarray, members: np.ndarray,
+                      thresholds: np.ndarray | tuple[float, ...] = ()) -> DailyForecast:
+    """Daily statistics of members that are daily means already, ``members`` (K+1, M, B) [unit of the
+    thresholds]: mean, quantiles, the fraction of members reaching each threshold per day and on any
+    day 1..K (members are trajectories, e.g. after ensemble copula coupling)."""
+    members = np.asarray(members, dtype=float)
+    thr = np.asarray(thresholds, dtype=float).reshape(-1)
+    return DailyForecast(
+        day_end_d=np.asarray(day_end_d, dtype=float),
+        mean=members.mean(axis=1),
+        quantiles=np.quantile(members, QUANTILES, axis=1),
+        exceedance=(members[..., None] >= thr).mean(axis=1),
+        members=members,
+        horizon_exceedance=(members[1:].max(axis=0)[..., None] >= thr).mean(axis=0),
     )

@@ -129,24 +129,34 @@ def decide(level: int, quiet_cycles: int, p_max: Mapping[int, float], observed_u
 
 
 def exceedance_maxima(conn, run_id: int, analysis_utc: dt.datetime, horizon_days: int) -> dict[str, dict[int, float]]:
-    """``{basin_id: {level: max p_level_<n> over days 1..horizon}}`` of one forecast run."""
+    """``{basin_id: {level: probability of reaching it within the horizon}}`` of one forecast run.
+
+    The run's ``p_horizon_level_<n>`` (the fraction of members that reach the
+    level on any day) where it has them; for older runs, the largest daily
+    ``p_level_<n>`` over days 1..horizon (a lower bound of it).
+    """
     rows = conn.execute(
         select(forecast_values.c.basin_id, forecast_values.c.valid_utc, forecast_values.c.statistic,
                forecast_values.c.value)
         .where(and_(forecast_values.c.run_id == run_id, forecast_values.c.quantity == QUANTITY,
-                    forecast_values.c.statistic.like("p_level_%"))))
-    out: dict[str, dict[int, float]] = {}
+                    forecast_values.c.statistic.like("p_%level_%"))))
+    daily: dict[str, dict[int, float]] = {}
+    horizon: dict[str, dict[int, float]] = {}
     for basin_id, valid_utc, statistic, value in rows:
-        lead_days = round((valid_utc - analysis_utc) / DAY)
-        if not 1 <= lead_days <= horizon_days:
-            continue
-        suffix = statistic[len("p_level_"):]
+        within = statistic.startswith("p_horizon_level_")
+        suffix = statistic.rsplit("_", 1)[-1]
         if not suffix.isdigit() or value is None or math.isnan(value):
             continue
         n = int(suffix)
-        per_basin = out.setdefault(basin_id, {})
+        if within:
+            horizon.setdefault(basin_id, {})[n] = float(value)
+            continue
+        lead_days = round((valid_utc - analysis_utc) / DAY)
+        if not 1 <= lead_days <= horizon_days:
+            continue
+        per_basin = daily.setdefault(basin_id, {})
         per_basin[n] = max(per_basin.get(n, 0.0), float(value))
-    return out
+    return {b: horizon.get(b, daily.get(b, {})) for b in set(daily) | set(horizon)}
 
 
 def evaluate_run(engine: Engine, config, water_body_id: str, run_id: int,

@@ -34,8 +34,10 @@ from monitor.alerting import rules as alerts
 from monitor.config import Config, WaterBodyConfig
 from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.forecasting.baselines import baseline_members
+from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history
+from monitor.forecasting.publish import publish
 from monitor.forecasting.quantities import QUANTITIES
 from monitor.store import runs as store
 from monitor.store.readings import latest_driver_forecast, readings_frame
@@ -70,6 +72,8 @@ class CycleInputs:
     window_days: float = 1.0
     basin_ids: tuple[str, ...] = ()
     history: ObservedHistory = field(default_factory=ObservedHistory)
+    #: chlorophyll quantity -> the blend's settings per lead (from the record; priors by default)
+    blend: dict = field(default_factory=dict)
     #: basin id of each chlorophyll sensor whose gain the filter estimates (gain columns in order)
     sensor_basins: tuple[str, ...] = ()
 
@@ -176,6 +180,7 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
         history=observed_history(engine, config, wb, analysis),
+        blend=read_blend_settings(engine, wb, analysis),
         sensor_basins=tuple(config.station(s).basin for s in chlorophyll_sensors(config, wb)))
 
 
@@ -193,12 +198,9 @@ class CycleOutputs:
     diagnostics: dict = field(default_factory=dict)
     forecasts: dict = field(default_factory=dict)  # quantity -> assimilation.forecast.DailyForecast
     basin_ids: tuple[str, ...] = ()
-    #: (basin, quantity, forecaster, observed variable, members (days, M)) of the baselines
-    baselines: list = field(default_factory=list)
-    #: (basin, quantity) -> the observed variable that verifies it
-    verified_by: dict = field(default_factory=dict)
-    #: basin -> each member's mean estimated gain of the basin's chlorophyll sensors (M,)
-    sensor_gain: dict = field(default_factory=dict)
+    #: (basin, quantity, forecaster, observed variable, members (days, M)) stored for verification:
+    #: the published forecast, the process model's, the uncalibrated blend and the baselines
+    verification_members: list = field(default_factory=list)
 
 
 def compute(inputs: CycleInputs) -> CycleOutputs:
@@ -224,9 +226,11 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
     sensor_gain = _basin_sensor_gains(gains, inputs.sensor_basins, inputs.basin_ids)
     issued_baselines = list(baseline_members(inputs.history, inputs.basin_ids, inputs.analysis_d,
                                              inputs.horizon_days))
+    published, verified_members = publish(forecasts, issued_baselines, inputs.basin_ids, verified_by, sensor_gain,
+                                          inputs.blend, {alerts.QUANTITY: inputs.thresholds_ugL})
     return CycleOutputs(inputs.water_body_id, inputs.analysis_d, result.status, result.message,
-                        result.checkpoint.to_bytes(), _jsonable(result.diagnostics), forecasts, inputs.basin_ids,
-                        issued_baselines, verified_by, sensor_gain)
+                        result.checkpoint.to_bytes(), _jsonable(result.diagnostics), published, inputs.basin_ids,
+                        issued_baselines + verified_members)
 
 
 def _basin_sensor_gains(gains: np.ndarray, sensor_basins: tuple[str, ...], basin_ids) -> dict:
@@ -298,20 +302,14 @@ def forecast_rows(outputs: CycleOutputs):
                     yield basin, valid, quantity, f"q{round(q * 100):02d}", fc.quantiles[qi, k, b]
                 for level in range(fc.exceedance.shape[2]):
                     yield basin, valid, quantity, f"p_level_{level + 1}", fc.exceedance[k, b, level]
+                if k == 0 and fc.horizon_exceedance is not None:
+                    for level in range(fc.horizon_exceedance.shape[1]):
+                        yield basin, valid, quantity, f"p_horizon_level_{level + 1}", fc.horizon_exceedance[b, level]
 
 
 def member_rows(outputs: CycleOutputs):
-    """(basin, quantity, forecaster, observed variable, members (days, M)) of Bloomline's forecast
-    (where an observed series verifies it) and of the baselines issued with it."""
-    for (basin, quantity), variable in outputs.verified_by.items():
-        fc = outputs.forecasts.get(quantity)
-        if fc is None:
-            continue
-        members = fc.members[:, :, outputs.basin_ids.index(basin)]
-        if variable == "chlorophyll_fluorescence" and basin in outputs.sensor_gain:
-            members = members * outputs.sensor_gain[basin][None, :]  # what the sensor will read
-        yield basin, quantity, "bloomline", variable, members
-    yield from outputs.baselines
+    """(basin, quantity, forecaster, observed variable, members (days, M)) stored for verification."""
+    yield from outputs.verification_members
 
 
 def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,

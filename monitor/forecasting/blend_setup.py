@@ -1,0 +1,84 @@
+"""The blend's settings for one cycle, from the water body's verified record up to the analysis.
+
+Per chlorophyll quantity and lead day, from the score records
+(:mod:`monitor.verification.live`) whose days ended in the ``RECORD_DAYS``
+before the analysis, pooled over the water body's basins:
+
+* component weights ∝ 1/CRPS² of each component's record, shrunk towards
+  ``PRIOR_WEIGHTS`` with the weight of ``PRIOR_DAYS`` verified days
+  (:func:`assimilation.blend.inverse_crps_weights`);
+* the uncalibrated blend's (``blend_raw``) mean log error and the ratio of its
+  root-mean-square log error to its log spread (with the finite-ensemble
+  factor (M + 1)/M), shrunk towards no correction in the same way.
+
+With no record yet the documented priors apply: the process model and the
+two statistical forecasts in the proportions of ``PRIOR_WEIGHTS`` (Bloomline's
+choice: the process model alone was measured to lose to persistence, the
+statistical forecasts to be close to it; the record takes over within weeks),
+no bias correction, no spread change. Only records of days that ended at or
+before the analysis are read, so a hindcast stays free of look-ahead.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import numpy as np
+import pandas as pd
+from sqlalchemy.engine import Engine
+
+from assimilation.blend import LeadSettings, inverse_crps_weights
+from assimilation.scores import LOG_FLOOR_UGL
+from monitor.config import WaterBodyConfig
+from monitor.forecasting.history import OBSERVED_BY
+
+PROCESS = "process_model"
+UNCALIBRATED = "blend_raw"
+#: The forecasters the blend may combine (the one-member persistence forecast is not a distribution).
+COMPONENTS = (PROCESS, "persistence_ensemble", "statistical", "climatology")
+PRIOR_WEIGHTS = {PROCESS: 0.4, "persistence_ensemble": 0.3, "statistical": 0.3}
+PRIOR_DAYS = 20
+RECORD_DAYS = 60
+
+
+def _shrink(n: int) -> float:
+    return n / (n + PRIOR_DAYS)
+
+
+def lead_settings(records: pd.DataFrame) -> LeadSettings:
+    """The blend of one lead from its records (one quantity, one lead)."""
+    mean_crps = {c: float(g.crps.mean()) for c, g in records.groupby("forecaster") if c in COMPONENTS}
+    counts = {c: int(len(g)) for c, g in records.groupby("forecaster") if c in COMPONENTS}
+    weights = inverse_crps_weights(mean_crps, counts, PRIOR_WEIGHTS, PRIOR_DAYS)
+    raw = records[records.forecaster == UNCALIBRATED]
+    raw = raw[raw.log_sd.notna()]
+    if len(raw) < 2:
+        return LeadSettings(weights)
+    err = raw.log_mean.to_numpy(float) - np.log(np.maximum(raw.observed.to_numpy(float), LOG_FLOOR_UGL))
+    m = raw["members"].to_numpy(float)
+    bias = float(err.mean())
+    spread = float(np.sqrt(np.mean(raw.log_sd.to_numpy(float) ** 2 * (m + 1) / m)))
+    rmse = float(np.sqrt(np.mean((err - bias) ** 2)))
+    a = _shrink(len(raw))
+    factor = float(np.exp(a * np.log(rmse / spread))) if spread > 0 and rmse > 0 else 1.0
+    return LeadSettings(weights, bias_ln=a * bias, spread_factor=factor)
+
+
+def blend_settings(records: pd.DataFrame, analysis: dt.datetime, horizon: int) -> dict[str, list[LeadSettings]]:
+    """Per chlorophyll quantity, the settings of leads 1..horizon from the ``records`` (``RECORD_COLUMNS``)."""
+    if len(records):
+        records = records[(records.valid_utc <= pd.Timestamp(analysis))
+                          & (records.valid_utc > pd.Timestamp(analysis) - pd.Timedelta(days=RECORD_DAYS))]
+    out = {}
+    for quantity in OBSERVED_BY:
+        sub = records[records.quantity == quantity] if len(records) else records
+        out[quantity] = [lead_settings(sub[sub.lead_days == k] if len(sub) else sub) for k in range(1, horizon + 1)]
+    return out
+
+
+def read_blend_settings(engine: Engine, wb: WaterBodyConfig, analysis: dt.datetime) -> dict[str, list[LeadSettings]]:
+    """:func:`blend_settings` from the records stored for ``wb``."""
+    from monitor.verification.live import stored_records
+
+    records = stored_records(engine, wb.id, since=analysis - dt.timedelta(days=RECORD_DAYS))
+    return blend_settings(records, analysis, wb.alerts.horizon_days)
