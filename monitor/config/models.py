@@ -60,6 +60,8 @@ class WaterBodyConfig:
     inflows: tuple[InflowConfig, ...]
     alerts: AlertConfig
     model: Mapping[str, float] = field(default_factory=dict)  # ModelSpec constants overridden for this water body
+    latitude_deg: float | None = None   # [° N] for clear-sky light when there is no weather feed
+    longitude_deg: float | None = None  # [° E]
 
     def basin_index(self, basin_id: str) -> int:
         return [b.id for b in self.basins].index(basin_id)

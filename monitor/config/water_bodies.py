@@ -38,10 +38,18 @@ def read_water_body(r: Reader) -> WaterBodyConfig:
     wb = WaterBodyConfig(
         id=wid, name=r.get("name", str, wid), use=use, timezone=timezone(r, "timezone", "UTC"),
         weather_station=r.get("weather_station", str, None),
-        basins=tuple(basins), inflows=tuple(inflows), alerts=_alerts(r.sub("alerts"), use), model=_model(r))
+        basins=tuple(basins), inflows=tuple(inflows), alerts=_alerts(r.sub("alerts"), use), model=_model(r),
+        latitude_deg=_bounded(r, "latitude", -90.0, 90.0), longitude_deg=_bounded(r, "longitude", -180.0, 180.0))
     r.finish()
     check_model_spec(wb, r.path, r.prefix)
     return wb
+
+
+def _bounded(r: Reader, name: str, lo: float, hi: float) -> float | None:
+    value = r.get(name, float, None)
+    if value is not None and not lo <= value <= hi:
+        raise r.error(name, f"expected degrees in [{lo:g}, {hi:g}], got {value!r}")
+    return value
 
 
 def _basins(r: Reader) -> list[BasinConfig]:

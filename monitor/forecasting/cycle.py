@@ -36,7 +36,7 @@ from monitor.config.model_setup import chlorophyll_sensors, filter_config, model
 from monitor.forecasting.baselines import baseline_members
 from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
-from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history
+from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
 from monitor.forecasting.publish import publish
 from monitor.forecasting.quantities import QUANTITIES
 from monitor.store import runs as store
@@ -74,6 +74,8 @@ class CycleInputs:
     history: ObservedHistory = field(default_factory=ObservedHistory)
     #: chlorophyll quantity -> the blend's settings per lead (from the record; priors by default)
     blend: dict = field(default_factory=dict)
+    #: drivers substituted for missing readings, in words (the run is then "degraded")
+    substitutions: tuple[str, ...] = ()
     #: basin id of each chlorophyll sensor whose gain the filter estimates (gain columns in order)
     sensor_basins: tuple[str, ...] = ()
 
@@ -165,12 +167,18 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
     frame = station_readings(engine, config, wb, min(start - dt.timedelta(days=3), analysis - dt.timedelta(days=14)),
                              analysis)
     series = StationSeries(frame)
-    drivers = observed_drivers(series, config, wb, start, analysis)
+    notes: list[str] = []
+    drivers = observed_drivers(series, config, wb, start, analysis, notes)
     horizon = wb.alerts.horizon_days
     weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
                if wb.weather_station else pd.DataFrame())
+    history = observed_history(engine, config, wb, analysis)
+    centre_d = float(to_epoch_days(analysis)) + horizon / 2
+    climatology = {b.id: c for b in wb.basins
+                   if (c := seasonal_mean(history, b.id, "water_temperature", centre_d)) is not None}
     scenarios = forecast_drivers(series, weather, config, wb, analysis, horizon,
-                                 temperature_offsets_C=DRIVER_SCENARIOS_C)
+                                 temperature_offsets_C=DRIVER_SCENARIOS_C, temperature_climatology_C=climatology,
+                                 notes=notes)
     return CycleInputs(
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
@@ -179,7 +187,7 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
-        history=observed_history(engine, config, wb, analysis),
+        history=history, substitutions=tuple(notes),
         blend=read_blend_settings(engine, wb, analysis),
         sensor_basins=tuple(config.station(s).basin for s in chlorophyll_sensors(config, wb)))
 
@@ -226,9 +234,13 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
     sensor_gain = _basin_sensor_gains(gains, inputs.sensor_basins, inputs.basin_ids)
     issued_baselines = list(baseline_members(inputs.history, inputs.basin_ids, inputs.analysis_d,
                                              inputs.horizon_days))
+    status, message = result.status, result.message
+    if inputs.substitutions:
+        status = "degraded" if status == "ok" else status
+        message = "; ".join([m for m in (message, "drivers substituted: " + "; ".join(inputs.substitutions)) if m])
     published, verified_members = publish(forecasts, issued_baselines, inputs.basin_ids, verified_by, sensor_gain,
                                           inputs.blend, {alerts.QUANTITY: inputs.thresholds_ugL})
-    return CycleOutputs(inputs.water_body_id, inputs.analysis_d, result.status, result.message,
+    return CycleOutputs(inputs.water_body_id, inputs.analysis_d, status, message,
                         result.checkpoint.to_bytes(), _jsonable(result.diagnostics), published, inputs.basin_ids,
                         issued_baselines + verified_members)
 

@@ -20,11 +20,17 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from assimilation.solar import clear_sky_shortwave_W_m2
 from assimilation.spec import Drivers
 from monitor.config import Config, WaterBodyConfig
 from monitor.timeutil import to_epoch_days
 
 HOUR = pd.Timedelta(hours=1)
+
+#: Time scale [d] over which a water body's own recent water temperature relaxes toward its
+#: climatology when no weather feed gives an air temperature (common practice: surface water
+#: temperature anomalies of lakes persist for one to a few weeks).
+CLIMATOLOGY_RELAXATION_D = 10.0
 
 #: Used only when a water body has no reading at all of a driver.
 FALLBACK = {
@@ -92,12 +98,27 @@ def driver_stations(config: Config, wb: WaterBodyConfig) -> list[str]:
     return [s for s in (*src.temperature_stations, src.weather_station, *src.gauges) if s]
 
 
+def _substitute_shortwave(wb: WaterBodyConfig, index: pd.DatetimeIndex, notes: list[str] | None) -> np.ndarray:
+    """Shortwave where no reading or forecast exists: clear-sky astronomy at the water body's
+    latitude with a climatological sunshine fraction, else a constant; the substitution is noted."""
+    if wb.latitude_deg is not None:
+        _note(notes, f"shortwave from clear-sky astronomy at {wb.latitude_deg:g}° with a climatological cloud factor")
+        return clear_sky_shortwave_W_m2(np.asarray(to_epoch_days(index)), wb.latitude_deg, wb.longitude_deg or 0.0)
+    _note(notes, f"shortwave a constant {FALLBACK['shortwave_radiation']:g} W/m² (no weather feed, no latitude)")
+    return np.full(len(index), FALLBACK["shortwave_radiation"])
+
+
+def _note(notes: list[str] | None, text: str) -> None:
+    if notes is not None and text not in notes:
+        notes.append(text)
+
+
 def observed_drivers(series: StationSeries, config: Config, wb: WaterBodyConfig, start: dt.datetime,
-                     end: dt.datetime) -> Drivers:
+                     end: dt.datetime, notes: list[str] | None = None) -> Drivers:
     """Hourly drivers from ``start`` to ``end`` (aware UTC) from QC-passed readings.
 
     ``series`` should hold a few days before ``start`` too, so gaps at the
-    start are bridged.
+    start are bridged. Drivers substituted for missing readings are named in ``notes``.
     """
     src = driver_sources(config, wb)
     index = pd.date_range(start, end, freq="1h")
@@ -105,7 +126,9 @@ def observed_drivers(series: StationSeries, config: Config, wb: WaterBodyConfig,
         index = index.append(pd.DatetimeIndex([pd.Timestamp(end)]))
     temps = np.column_stack([series.hourly(s, "water_temperature", index, FALLBACK["water_temperature"])
                              for s in src.temperature_stations])
-    light = series.hourly(src.weather_station, "shortwave_radiation", index, FALLBACK["shortwave_radiation"])
+    light = (series.hourly(src.weather_station, "shortwave_radiation", index, FALLBACK["shortwave_radiation"])
+             if not series.get(src.weather_station, "shortwave_radiation").empty
+             else _substitute_shortwave(wb, index, notes))
     cols = {v: [np.clip(series.hourly(g, v, index, FALLBACK[v]), 0.0, None) for g in src.gauges]
             for v in ("discharge", "nitrate", "srp")}
     q, n, p = (np.column_stack(cols[v]) if cols[v] else np.zeros((len(index), 0))
@@ -117,7 +140,9 @@ def observed_drivers(series: StationSeries, config: Config, wb: WaterBodyConfig,
 
 def forecast_drivers(series: StationSeries, weather_forecast: pd.DataFrame, config: Config, wb: WaterBodyConfig,
                      analysis: dt.datetime, horizon_days: int, *,
-                     temperature_offsets_C: tuple[float, ...] = (0.0,)) -> list[Drivers]:
+                     temperature_offsets_C: tuple[float, ...] = (0.0,),
+                     temperature_climatology_C: dict[str, float] | None = None,
+                     notes: list[str] | None = None) -> list[Drivers]:
     """Hourly drivers from ``analysis`` to ``analysis + horizon_days``, one per scenario.
 
     ``series`` holds the last two weeks of readings; ``weather_forecast`` the
@@ -125,10 +150,19 @@ def forecast_drivers(series: StationSeries, weather_forecast: pd.DataFrame, conf
     valid_utc, value; may be empty). Each entry of ``temperature_offsets_C``
     shifts the air-temperature outlook (and so the water temperature) for
     one driver scenario of the forecast ensemble [°C].
+
+    Without any air temperature (no weather feed), each basin's water
+    temperature starts from its last daily mean and relaxes toward its
+    climatology for the season (``temperature_climatology_C``, from earlier
+    years) over ``CLIMATOLOGY_RELAXATION_D``, or is held where there is no
+    earlier year; the offsets then shift it directly. Substitutions are named
+    in ``notes``.
     """
     src = driver_sources(config, wb)
     index = pd.date_range(analysis, analysis + dt.timedelta(days=horizon_days), freq="1h")
     weather = _weather_outlook(series, weather_forecast, src.weather_station, index)
+    if weather["shortwave_radiation"] is None:
+        weather["shortwave_radiation"] = _substitute_shortwave(wb, index, notes)
     light = np.clip(weather["shortwave_radiation"], 0.0, None)
     past_air = series.daily_mean(src.weather_station, "air_temperature")
     start_temps, offsets, taus = [], [], []
@@ -143,7 +177,19 @@ def forecast_drivers(series: StationSeries, weather_forecast: pd.DataFrame, conf
                    for g in src.gauges] for v in ("discharge", "nitrate", "srp")}
     q, n, p = (np.tile(np.asarray(persist[v], dtype=float), (len(index), 1)) for v in ("discharge", "nitrate", "srp"))
     out = []
+    if weather["air_temperature"] is None:
+        climatology = temperature_climatology_C or {}
+        target = np.array([climatology.get(b.id, s) for b, s in zip(wb.basins, start_temps)])
+        _note(notes, "water temperature from the recent readings, "
+              + ("relaxing toward its seasonal climatology" if climatology else "held (no earlier year)")
+              + " (no air temperature from a weather feed)")
     for shift in temperature_offsets_C:
+        if weather["air_temperature"] is None:
+            temps = _relax(np.asarray(start_temps), np.tile(target, (len(index), 1)),
+                           np.full(len(start_temps), CLIMATOLOGY_RELAXATION_D), 1.0 / 24.0) + shift
+            out.append(Drivers(time_d=np.asarray(to_epoch_days(index)), water_temperature_C=temps,
+                               shortwave_W_m2=light, inflow_m3_s=q, inflow_nitrogen_ugL=n, inflow_phosphorus_ugL=p))
+            continue
         air_daily = pd.Series(weather["air_temperature"] + shift, index=index).rolling(24, min_periods=1).mean()
         temps = _relax(np.asarray(start_temps), air_daily.to_numpy()[:, None] + np.asarray(offsets),
                        np.asarray(taus), 1.0 / 24.0)
@@ -162,8 +208,9 @@ def _relax(start: np.ndarray, equilibrium: np.ndarray, tau_d: np.ndarray, dt_d: 
     return temps
 
 
-def _weather_outlook(series: StationSeries, fc: pd.DataFrame, station, index) -> dict[str, np.ndarray]:
-    """Air temperature and shortwave over ``index``: the issued forecast, else a persistence climatology."""
+def _weather_outlook(series: StationSeries, fc: pd.DataFrame, station, index) -> dict[str, np.ndarray | None]:
+    """Air temperature and shortwave over ``index``: the issued forecast, else a persistence
+    climatology of the station's last two weeks, else None (no weather at all)."""
     out = {}
     for variable in ("air_temperature", "shortwave_radiation"):
         sel = fc[fc.variable == variable] if not fc.empty else fc
@@ -175,7 +222,7 @@ def _weather_outlook(series: StationSeries, fc: pd.DataFrame, station, index) ->
             continue
         hist = series.get(station, variable)
         if hist.empty:
-            out[variable] = np.full(len(index), FALLBACK[variable])
+            out[variable] = None
             continue
         by_hour = hist.groupby(hist.index.hour).mean()
         out[variable] = by_hour.reindex(range(24)).interpolate(limit_direction="both").to_numpy()[index.hour]

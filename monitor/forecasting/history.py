@@ -104,3 +104,16 @@ def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analys
     frame = pd.concat([f for f in frames if len(f)], ignore_index=True) if any(len(f) for f in frames) \
         else frames[0]
     return series_by_basin(frame.drop_duplicates(["station_id", "variable", "day_end_utc"]), basin_of)
+
+
+def seasonal_mean(history: ObservedHistory, basin: str, quantity: str, centre_d: float,
+                  half_window_d: float = 15.0, min_age_d: float = 300.0) -> float | None:
+    """Mean of a basin's daily series within ±``half_window_d`` days of ``centre_d``'s day of year in
+    earlier years (values at least ``min_age_d`` days before it), or None without an earlier year."""
+    s = history.get(basin, quantity)
+    if s is None or s.days_d.size == 0:
+        return None
+    offset = (centre_d - s.days_d) % 365.25
+    distance = np.minimum(offset, 365.25 - offset)
+    keep = (distance <= half_window_d) & (s.days_d <= centre_d - min_age_d) & np.isfinite(s.values)
+    return float(s.values[keep].mean()) if keep.sum() >= 5 else None
