@@ -51,7 +51,11 @@ def plotting_positions(m: int) -> np.ndarray:
 
 
 def vincentize(log_members: dict[str, np.ndarray], weights: dict[str, float], m: int) -> np.ndarray:
-    """Weighted mean of the components' log quantiles at the ``m`` plotting positions (m,)."""
+    """Weighted mean of the components' log quantiles at the ``m`` plotting positions (m,).
+
+    Quantiles by Hazen's definition, so a component of m members contributes exactly its
+    order statistics.
+    """
     p = plotting_positions(m)
     total = sum(weights.get(c, 0.0) for c in log_members)
     if total <= 0:
@@ -60,7 +64,7 @@ def vincentize(log_members: dict[str, np.ndarray], weights: dict[str, float], m:
     for name, z in log_members.items():
         w = weights.get(name, 0.0) / total
         if w > 0:
-            out += w * np.quantile(np.asarray(z, dtype=float), p)
+            out += w * np.quantile(np.asarray(z, dtype=float), p, method="hazen")
     return out
 
 

@@ -22,7 +22,7 @@ import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
-from assimilation import filter_cycle, integrate
+from assimilation import filter_cycle, integrate, transform
 from assimilation.augmentation import split
 from assimilation.checkpoint import Checkpoint
 from assimilation.filter_config import FilterConfig
@@ -260,17 +260,35 @@ def _basin_sensor_gains(gains: np.ndarray, sensor_basins: tuple[str, ...], basin
 
 
 def _forecast(states, params, spec, inputs: CycleInputs) -> dict:
-    """Run the analysis ensemble to the horizon in one call, members spread over the driver scenarios."""
+    """Run the analysis ensemble to the horizon, members spread over the driver scenarios.
+
+    The forecast carries the filter's stochastic model error: at the end of
+    each forecast day every member's state is multiplied by a log-normal
+    factor of sd ``model_error_log_sd_per_d`` (one day), as between analyses,
+    so the ensemble's spread grows as the filter assumes it does. The draws
+    come from a generator seeded by the cycle (reproducible; a paired what-if
+    run with the same seed gets the same draws).
+    """
     layout = StateLayout(spec)
     M = states.shape[0]
     t0 = inputs.analysis_d
-    save = t0 + np.arange(0, 24 * inputs.horizon_days + 1) / 24.0
     scenarios = inputs.forecast_drivers
     base = scenarios[0]
     member_scenario = np.arange(M) % len(scenarios)
     temps = np.stack([d.water_temperature_C for d in scenarios])          # (S, T, B)
     drivers = dataclasses.replace(base, water_temperature_C=np.transpose(temps[member_scenario], (1, 0, 2)))
-    traj = integrate.simulate(states, spec, drivers, t0, save, params=params or None)
+    rng = np.random.default_rng([inputs.seed, int(round(t0 * 24))])
+    sd, floor = inputs.filter.model_error_log_sd_per_d, inputs.filter.state_floor_ugL
+    x, parts = states, []
+    for day in range(inputs.horizon_days):
+        save = t0 + day + np.arange(0 if day == 0 else 1, 25) / 24.0
+        part = integrate.simulate(x, spec, drivers, t0 + day, save, params=params or None)
+        parts.append(part)
+        x = part[-1]
+        if sd > 0:
+            x = transform.from_log(transform.to_log(x, floor) + sd * rng.standard_normal(x.shape))
+    traj = np.concatenate(parts, axis=0)
+    save = t0 + np.arange(0, 24 * inputs.horizon_days + 1) / 24.0
     chl = layout.chlorophyll(traj)
     cyano = [g for g, grp in enumerate(spec.groups) if grp.is_cyanobacteria]
     series = {
