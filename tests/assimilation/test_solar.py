@@ -5,8 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from assimilation.solar import (clear_sky_shortwave_W_m2, daily_extraterrestrial_MJ_m2,
-                                extraterrestrial_W_m2)
+from assimilation.solar import clear_sky_shortwave_W_m2, daily_extraterrestrial_MJ_m2, extraterrestrial_W_m2
 
 EPOCH_2026_09_03 = 20699.0  # 2026-09-03T00:00Z in days since 1970-01-01
 
