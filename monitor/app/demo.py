@@ -115,7 +115,7 @@ def run_demo(workdir: Path, *, feeds: Path | None = None, quiet: bool = False,
     # (so no reading lies in the future); the cycles then replay the season day by
     # day and read only what was there at each analysis time.
     clock = Clock(dt.datetime(2026, 11, 2, tzinfo=UTC))
-    service = Service(config, clock=clock)
+    service = Service(config, clock=clock, replay=True)
     try:
         files = [p for fd in config.feeds if fd.kind == "csv-folder" for p in feed_files(fd)]
         with _progress(None, "Ingesting feeds", quiet, length=len(files)) as bar:

@@ -31,8 +31,11 @@ log = logging.getLogger("bloomline")
 class Service:
     def __init__(self, config: Config, *, engine: Engine | None = None,
                  transport: notify.Transport | None = None,
-                 clock: Callable[[], dt.datetime] = now_utc):
+                 clock: Callable[[], dt.datetime] = now_utc, replay: bool = False):
+        """``replay``: the cycles replay a stored history (the demo, a hindcast): readings are
+        available by their time stamps, and none is late."""
         self.config = config
+        self.replay = replay
         self.engine = engine if engine is not None else open_store(config.service.database_url)
         self.transport = transport if transport is not None else notify.transport_from_config(config)
         self.clock = clock
@@ -69,7 +72,8 @@ class Service:
         inputs = []
         for wb in bodies:
             try:
-                inputs.append(cycle.gather(self.engine, self.config, wb, analysis, season_start=season_start))
+                inputs.append(cycle.gather(self.engine, self.config, wb, analysis, season_start=season_start,
+                                           replay=self.replay))
             except Exception as exc:  # noqa: BLE001 - one water body's failure never stops the others
                 summaries[wb.id] = _failed(wb.id, analysis, "gather", exc)
         for out in self.compute_many(inputs):

@@ -19,7 +19,8 @@ from monitor.config.reader import Reader, database_url, resolve, secret
 
 #: Keys of ``[filter]`` that Bloomline reads itself; any other key must be an
 #: option of ``assimilation``'s FilterConfig (see :func:`model_setup.filter_option_kinds`).
-FILTER_SETTINGS_KEYS = ("members", "method", "seed", "window_days", "assimilate_suspect", "spin_up_cycles")
+FILTER_SETTINGS_KEYS = ("members", "method", "seed", "window_days", "assimilate_suspect", "spin_up_cycles",
+                        "late_window_days")
 
 
 def read_service(s: Reader, base: Path) -> ServiceConfig:
@@ -75,7 +76,8 @@ def read_filter(fr: Reader) -> FilterSettings:
     filt = FilterSettings(members=fr.get("members", int, 60), method=fr.get("method", str, "sqrt"),
                           seed=fr.get("seed", int, 20260501), window_days=fr.positive("window_days", 1.0),
                           assimilate_suspect=fr.get("assimilate_suspect", bool, False),
-                          spin_up_cycles=fr.get("spin_up_cycles", int, 7), options=options)
+                          spin_up_cycles=fr.get("spin_up_cycles", int, 7),
+                          late_window_days=fr.positive("late_window_days", 14.0), options=options)
     if filt.spin_up_cycles < 0:
         raise fr.error("spin_up_cycles", f"expected 0 or more, got {filt.spin_up_cycles}")
     if filt.members < 3:

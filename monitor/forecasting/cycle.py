@@ -40,8 +40,9 @@ from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_h
 from monitor.forecasting.publish import publish
 from monitor.forecasting.quantities import QUANTITIES
 from monitor.store import runs as store
+from monitor.store.late import checkpoint_created, late_readings
 from monitor.store.readings import latest_driver_forecast, readings_frame
-from monitor.timeutil import from_epoch_days, to_epoch_days
+from monitor.timeutil import EPOCH, from_epoch_days, to_epoch_days
 
 #: Air-temperature offsets [°C] of the forecast's driver scenarios; members are
 #: spread over them so the forecast carries weather uncertainty (common practice
@@ -76,6 +77,8 @@ class CycleInputs:
     blend: dict = field(default_factory=dict)
     #: drivers substituted for missing readings, in words (the run is then "degraded")
     substitutions: tuple[str, ...] = ()
+    #: late readings taken in (or left out), in words, for the run's message
+    late_note: str = ""
     #: basin id of each chlorophyll sensor whose gain the filter estimates (gain columns in order)
     sensor_basins: tuple[str, ...] = ()
 
@@ -151,12 +154,50 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
     return layout.pack(N, P, A)
 
 
+def late_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                 found: tuple[dt.datetime, bytes]) -> tuple[tuple[dt.datetime, bytes], str]:
+    """The checkpoint to start from when readings arrived after the cycle that covered their time.
+
+    Late readings (stamped at or before the newest checkpoint, received after
+    it was stored) within ``late_window_days`` are assimilated by restarting
+    from the newest checkpoint before the earliest of them and re-analysing
+    forward; issued runs stay as issued. Returns (checkpoint, message).
+    """
+    created = checkpoint_created(engine, wb.id, found[0])
+    if created is None:
+        return found, ""
+    window_start = analysis - dt.timedelta(days=config.filter.late_window_days)
+    stations = [s.id for s in config.stations_of(wb.id) if s.basin]
+    max_flag = 3 if config.filter.assimilate_suspect else 1
+    n_all, _ = late_readings(engine, stations=stations, variables=OBSERVABLE_KINDS, start=EPOCH,
+                             covered_until=found[0], received_after=created, max_flag=max_flag)
+    n, earliest = late_readings(engine, stations=stations, variables=OBSERVABLE_KINDS, start=window_start,
+                                covered_until=found[0], received_after=created, max_flag=max_flag)
+    older = f"; {n_all - n} late readings older than {config.filter.late_window_days:g} days not assimilated" \
+        if n_all > n else ""
+    if not n:
+        return found, older.removeprefix("; ")
+    earlier = store.latest_checkpoint(engine, wb.id, at_or_before=earliest - dt.timedelta(seconds=1))
+    if earlier is None or earlier[0] < window_start - dt.timedelta(days=1):
+        return found, f"{n} late readings from {earliest:%Y-%m-%d %H:%M} UTC: no checkpoint before them{older}"
+    return earlier, (f"re-analysed from {earlier[0]:%Y-%m-%d %H:%M} UTC for {n} late readings "
+                     f"(earliest {earliest:%Y-%m-%d %H:%M} UTC){older}")
+
+
 def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-           *, season_start: dt.datetime | None = None) -> CycleInputs:
-    """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC)."""
+           *, season_start: dt.datetime | None = None, replay: bool = False) -> CycleInputs:
+    """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC).
+
+    ``replay``: readings count as available by their time stamps alone (a
+    replay of a stored history, where arrival times mean nothing), so there
+    are no late readings.
+    """
     spec = model_spec(wb)
     cfg = filter_config(config, wb)
     found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
+    late_note = ""
+    if found is not None and not replay:
+        found, late_note = late_restart(engine, config, wb, analysis, found)
     if found is not None:
         start, blob, guess = found[0], found[1], None
     else:
@@ -187,7 +228,7 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
-        history=history, substitutions=tuple(notes),
+        history=history, substitutions=tuple(notes), late_note=late_note,
         blend=read_blend_settings(engine, wb, analysis),
         sensor_basins=tuple(config.station(s).basin for s in chlorophyll_sensors(config, wb)))
 
@@ -235,6 +276,8 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
     issued_baselines = list(baseline_members(inputs.history, inputs.basin_ids, inputs.analysis_d,
                                              inputs.horizon_days))
     status, message = result.status, result.message
+    if inputs.late_note:
+        message = "; ".join(m for m in (message, inputs.late_note) if m)
     if inputs.substitutions:
         status = "degraded" if status == "ok" else status
         message = "; ".join([m for m in (message, "drivers substituted: " + "; ".join(inputs.substitutions)) if m])

@@ -134,7 +134,7 @@ def replay(config: Config, live: Engine, days: list[dt.datetime], *, only: list[
     folder.mkdir(parents=True, exist_ok=True)
     scratch = scratch_copy(live, config, bodies, folder)
     start = season_start or (days[0] - dt.timedelta(days=1))
-    service = Service(config, engine=scratch, transport=DiscardTransport(), clock=lambda: days[0])
+    service = Service(config, engine=scratch, transport=DiscardTransport(), clock=lambda: days[0], replay=True)
     out: list[ReplayDay] = []
     try:
         for day in days:

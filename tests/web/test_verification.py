@@ -30,7 +30,7 @@ def record_app(brackenfold, tmp_path_factory):
     url = f"sqlite:///{tmp / 'live.sqlite'}"
     engine = open_store(url)
     days = analysis_days(FIRST, FIRST + dt.timedelta(days=12))
-    service = Service(config, engine=engine, transport=DiscardTransport(), clock=lambda: days[0])
+    service = Service(config, engine=engine, transport=DiscardTransport(), clock=lambda: days[0], replay=True)
     for day in days:
         service.clock = lambda day=day: day
         service.run_cycles(day, season_start=days[0] - dt.timedelta(days=1))

@@ -33,7 +33,7 @@ def test_the_service_scores_each_run_as_its_observations_arrive_as_a_hindcast_do
     config, _, folder = brackenfold
     engine = _copy(folder, tmp_path)
     days = analysis_days(FIRST, FIRST + dt.timedelta(days=11))
-    service = Service(config, engine=engine, transport=DiscardTransport(), clock=lambda: days[0])
+    service = Service(config, engine=engine, transport=DiscardTransport(), clock=lambda: days[0], replay=True)
     for day in days:
         service.clock = lambda day=day: day
         service.run_cycles(day, season_start=days[0] - dt.timedelta(days=1))
