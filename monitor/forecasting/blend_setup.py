@@ -47,11 +47,15 @@ def _shrink(n: int) -> float:
 
 def lead_settings(records: pd.DataFrame) -> LeadSettings:
     """The blend of one lead from its records (one quantity, one lead)."""
-    mean_crps = {c: float(g.crps.mean()) for c, g in records.groupby("forecaster") if c in COMPONENTS}
-    counts = {c: int(len(g)) for c, g in records.groupby("forecaster") if c in COMPONENTS}
-    weights = inverse_crps_weights(mean_crps, counts, PRIOR_WEIGHTS, PRIOR_DAYS)
-    raw = records[records.forecaster == UNCALIBRATED]
-    raw = raw[raw.log_sd.notna()]
+    comp = records[records.forecaster.isin(COMPONENTS)]
+    stats = comp.groupby("forecaster").crps.agg(["mean", "size"])
+    raw = records[(records.forecaster == UNCALIBRATED) & records.log_sd.notna()]
+    return _settings(stats, raw)
+
+
+def _settings(stats: pd.DataFrame, raw: pd.DataFrame) -> LeadSettings:
+    """Weights from the components' (mean CRPS, count) and calibration from the uncalibrated blend's records."""
+    weights = inverse_crps_weights(stats["mean"].to_dict(), stats["size"].to_dict(), PRIOR_WEIGHTS, PRIOR_DAYS)
     if len(raw) < 2:
         return LeadSettings(weights)
     err = raw.log_mean.to_numpy(float) - np.log(np.maximum(raw.observed.to_numpy(float), LOG_FLOOR_UGL))
@@ -69,10 +73,19 @@ def blend_settings(records: pd.DataFrame, analysis: dt.datetime, horizon: int) -
     if len(records):
         records = records[(records.valid_utc <= pd.Timestamp(analysis))
                           & (records.valid_utc > pd.Timestamp(analysis) - pd.Timedelta(days=RECORD_DAYS))]
+    empty_stats = pd.DataFrame({"mean": pd.Series(dtype=float), "size": pd.Series(dtype=int)})
     out = {}
     for quantity in OBSERVED_BY:
         sub = records[records.quantity == quantity] if len(records) else records
-        out[quantity] = [lead_settings(sub[sub.lead_days == k] if len(sub) else sub) for k in range(1, horizon + 1)]
+        if not len(sub):
+            out[quantity] = [LeadSettings(inverse_crps_weights({}, {}, PRIOR_WEIGHTS, PRIOR_DAYS))] * horizon
+            continue
+        comp = sub[sub.forecaster.isin(COMPONENTS)].groupby(["lead_days", "forecaster"]).crps.agg(["mean", "size"])
+        raw = sub[(sub.forecaster == UNCALIBRATED) & sub.log_sd.notna()]
+        raw_by_lead = dict(tuple(raw.groupby("lead_days")))
+        leads = set(comp.index.get_level_values(0))
+        out[quantity] = [_settings(comp.loc[k] if k in leads else empty_stats, raw_by_lead.get(k, raw.iloc[:0]))
+                         for k in range(1, horizon + 1)]
     return out
 
 

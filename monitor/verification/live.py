@@ -26,7 +26,7 @@ from monitor.verification.pairs import water_body_pairs
 from monitor.verification.records import RECORD_COLUMNS, pair_records
 
 #: Days after a run's horizon during which its scores are refreshed as late readings arrive.
-RESCORE_DAYS = 7
+RESCORE_DAYS = 2
 
 
 def levels_of(wb: WaterBodyConfig) -> dict[str, tuple[float, ...]]:

@@ -107,6 +107,8 @@ def water_body_pairs(runs_engine: Engine, live: Engine, config: Config, wb: Wate
                                         pd.Timestamp(runs.analysis_utc.iloc[0]) - DAY,
                                         end if until is None else min(end, pd.Timestamp(until)))
         daily = cache[tod]
+        if not isinstance(daily, dict):
+            daily = cache[tod] = {key: g.set_index("day_end_utc") for key, g in daily.groupby(["basin_id", "variable"])}
         issued = {(b, q, f): (v, a) for b, q, f, v, a in by_run.get(run_id, [])}
         for (basin, quantity, forecaster), (variable, arr) in issued.items():
             for lv, thr in enumerate(thresholds, start=1):
@@ -116,7 +118,9 @@ def water_body_pairs(runs_engine: Engine, live: Engine, config: Config, wb: Wate
                     outlooks.append((wb.id, basin, quantity, origin, forecaster, lv, float(p.max())))
             if forecaster != "bloomline":
                 continue
-            series = daily[(daily.basin_id == basin) & (daily.variable == variable)].set_index("day_end_utc")
+            series = daily.get((basin, variable))
+            if series is None:
+                continue
             observed.setdefault((wb.id, basin, quantity), series)
             for lead in range(1, arr.shape[0]):
                 valid = origin + lead * DAY
