@@ -13,7 +13,6 @@
 
 from __future__ import annotations
 
-import dataclasses
 import datetime as dt
 import math
 from dataclasses import dataclass, field
@@ -27,6 +26,7 @@ from assimilation.augmentation import split
 from assimilation.checkpoint import Checkpoint
 from assimilation.filter_config import FilterConfig
 from assimilation.first_guess import DEFAULT_FIRST_GUESS
+from assimilation.forcing import member_drivers
 from assimilation.forecast import QUANTILES, daily_statistics
 from assimilation.observe import OBSERVABLE_KINDS, Observations
 from assimilation.spec import Drivers, ModelSpec, StateLayout
@@ -36,7 +36,7 @@ from monitor.config.model_setup import chlorophyll_sensors, filter_config, model
 from monitor.forecasting.baselines import baseline_members
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history
-from monitor.forecasting.quantities import QUANTITIES
+from monitor.forecasting.quantities import QUANTITIES, quantity_series
 from monitor.store import runs as store
 from monitor.store.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import from_epoch_days, to_epoch_days
@@ -145,6 +145,17 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
     return layout.pack(N, P, A)
 
 
+def outlook_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, series: StationSeries,
+                    analysis: dt.datetime, horizon_days: int) -> list[Drivers]:
+    """The forecast's driver scenarios from ``analysis`` (aware UTC) over ``horizon_days``: the newest
+    weather forecast issued by then (else a persistence climatology), one scenario per entry of
+    :data:`DRIVER_SCENARIOS_C`. ``series`` holds the last two weeks of readings of ``wb``'s stations."""
+    weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
+               if wb.weather_station else pd.DataFrame())
+    return forecast_drivers(series, weather, config, wb, analysis, horizon_days,
+                            temperature_offsets_C=DRIVER_SCENARIOS_C)
+
+
 def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
            *, season_start: dt.datetime | None = None) -> CycleInputs:
     """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC)."""
@@ -163,10 +174,7 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
     series = StationSeries(frame)
     drivers = observed_drivers(series, config, wb, start, analysis)
     horizon = wb.alerts.horizon_days
-    weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
-               if wb.weather_station else pd.DataFrame())
-    scenarios = forecast_drivers(series, weather, config, wb, analysis, horizon,
-                                 temperature_offsets_C=DRIVER_SCENARIOS_C)
+    scenarios = outlook_drivers(engine, config, wb, series, analysis, horizon)
     return CycleInputs(
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
@@ -245,26 +253,25 @@ def _basin_sensor_gains(gains: np.ndarray, sensor_basins: tuple[str, ...], basin
 
 def _forecast(states, params, spec, inputs: CycleInputs) -> dict:
     """Run the analysis ensemble to the horizon in one call, members spread over the driver scenarios."""
-    layout = StateLayout(spec)
-    M = states.shape[0]
     t0 = inputs.analysis_d
-    save = t0 + np.arange(0, 24 * inputs.horizon_days + 1) / 24.0
-    scenarios = inputs.forecast_drivers
-    base = scenarios[0]
-    member_scenario = np.arange(M) % len(scenarios)
-    temps = np.stack([d.water_temperature_C for d in scenarios])          # (S, T, B)
-    drivers = dataclasses.replace(base, water_temperature_C=np.transpose(temps[member_scenario], (1, 0, 2)))
+    save = forecast_save_times(t0, inputs.horizon_days)
+    drivers = member_drivers(inputs.forecast_drivers, states.shape[0])
     traj = integrate.simulate(states, spec, drivers, t0, save, params=params or None)
-    chl = layout.chlorophyll(traj)
-    cyano = [g for g, grp in enumerate(spec.groups) if grp.is_cyanobacteria]
-    series = {
-        "cyanobacteria_chlorophyll": chl[..., cyano].sum(axis=-1),
-        "total_chlorophyll": chl.sum(axis=-1),
-        "nitrogen": layout.nitrogen(traj),
-        "phosphorus": layout.phosphorus(traj),
-    }
-    return {q: daily_statistics(save, series[q], t0, inputs.horizon_days,
-                                inputs.thresholds_ugL if q == alerts.QUANTITY else ())
+    return daily_forecasts(save, traj, spec, t0, inputs.horizon_days, inputs.thresholds_ugL)
+
+
+def forecast_save_times(t0_d: float, horizon_days: int) -> np.ndarray:
+    """The forecast's saved times: hourly from ``t0_d`` to the horizon [epoch days]."""
+    return t0_d + np.arange(0, 24 * horizon_days + 1) / 24.0
+
+
+def daily_forecasts(save_d: np.ndarray, traj: np.ndarray, spec: ModelSpec, t0_d: float, horizon_days: int,
+                    thresholds_ugL) -> dict:
+    """Daily statistics of every forecast quantity of a trajectory (S, M, n_state) [µg/L];
+    alert-level probabilities for the alerting quantity only."""
+    series = quantity_series(traj, spec)
+    return {q: daily_statistics(save_d, series[q], t0_d, horizon_days,
+                                thresholds_ugL if q == alerts.QUANTITY else ())
             for q in QUANTITIES}
 
 
