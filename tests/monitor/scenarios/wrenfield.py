@@ -15,7 +15,7 @@ from sqlalchemy import insert
 
 from monitor.alerting.transports import MailboxTransport
 from monitor.app.service import Service
-from monitor.config import parse_config
+from monitor.config import load_config
 from monitor.store.schema import ingest_batches, readings
 
 UTC = dt.UTC
@@ -24,34 +24,83 @@ ANALYSIS = dt.datetime(2026, 8, 12, tzinfo=UTC)
 FIRST = ANALYSIS - dt.timedelta(days=1)
 
 
-def wrenfield_config(tmp_path, members: int = 20):
-    data = {
-        "service": {"database": f"sqlite:///{tmp_path / 'wren.sqlite'}", "mailbox_dir": str(tmp_path / "mailbox"),
-                    "base_url": "http://bloomline.test"},
-        "filter": {"members": members, "spin_up_cycles": 0},
-        "water_bodies": [{
-            "id": "wrenfield", "name": "Wrenfield Water", "use": "drinking-water", "timezone": "Etc/GMT-2",
-            "weather_station": "WR-MET",
-            "basins": [
-                {"id": "upper-arm", "name": "Upper Arm", "volume_m3": 2.0e6, "mean_depth_m": 3.0,
-                 "area_m2": 6.7e5, "flows_to": "lower-basin"},
-                {"id": "lower-basin", "name": "Lower Basin", "volume_m3": 8.0e6, "mean_depth_m": 10.0,
-                 "area_m2": 8.0e5},
-            ],
-            "inflows": [{"id": "wren-brook", "name": "Wren Brook", "basin": "upper-arm", "gauge": "WR-G"}],
-            "alerts": {"framework": "who-1999-drinking-water", "horizon_days": 5, "warn_probability": 0.3},
-        }],
-        "stations": [
-            {"id": "WR-U", "kind": "buoy", "water_body": "wrenfield", "basin": "upper-arm",
-             "variables": ["phycocyanin", "chlorophyll_fluorescence", "water_temperature"]},
-            {"id": "WR-L", "kind": "buoy", "water_body": "wrenfield", "basin": "lower-basin",
-             "variables": ["phycocyanin", "chlorophyll_fluorescence", "water_temperature"]},
-            {"id": "WR-G", "kind": "gauge", "water_body": "wrenfield", "variables": ["discharge", "nitrate", "srp"]},
-            {"id": "WR-MET", "kind": "weather", "variables": ["air_temperature", "shortwave_radiation"]},
-        ],
-        "subscribers": [{"name": "Ivo Wren", "email": "ivo@wrenfield.example", "water_bodies": ["wrenfield"]}],
-    }
-    return parse_config(data)
+CONFIG = """
+[service]
+database = "sqlite:///{database}"
+mailbox_dir = "{mailbox}"
+base_url = "http://bloomline.test"
+
+[filter]
+members = {members}
+spin_up_cycles = 0
+
+[[water_bodies]]
+id = "wrenfield"
+name = "Wrenfield Water"
+use = "drinking-water"
+timezone = "Etc/GMT-2"
+weather_station = "WR-MET"
+alerts = {{ framework = "who-1999-drinking-water", horizon_days = 5, warn_probability = 0.3 }}
+
+[[water_bodies.basins]]
+id = "upper-arm"
+name = "Upper Arm"
+volume_m3 = 2.0e6
+mean_depth_m = 3.0
+area_m2 = 6.7e5
+flows_to = "lower-basin"
+
+[[water_bodies.basins]]
+id = "lower-basin"
+name = "Lower Basin"
+volume_m3 = 8.0e6
+mean_depth_m = 10.0
+area_m2 = 8.0e5
+
+[[water_bodies.inflows]]
+id = "wren-brook"
+name = "Wren Brook"
+basin = "upper-arm"
+gauge = "WR-G"
+
+[[stations]]
+id = "WR-U"
+kind = "buoy"
+water_body = "wrenfield"
+basin = "upper-arm"
+variables = ["phycocyanin", "chlorophyll_fluorescence", "water_temperature"]
+
+[[stations]]
+id = "WR-L"
+kind = "buoy"
+water_body = "wrenfield"
+basin = "lower-basin"
+variables = ["phycocyanin", "chlorophyll_fluorescence", "water_temperature"]
+
+[[stations]]
+id = "WR-G"
+kind = "gauge"
+water_body = "wrenfield"
+variables = ["discharge", "nitrate", "srp"]
+
+[[stations]]
+id = "WR-MET"
+kind = "weather"
+variables = ["air_temperature", "shortwave_radiation"]
+
+[[subscribers]]
+name = "Ivo Wren"
+email = "ivo@wrenfield.example"
+water_bodies = ["wrenfield"]
+"""
+
+
+def wrenfield_config(tmp_path, members: int = 20, *, database: str = "wren.sqlite"):
+    """The Config of Wrenfield Water, written to ``tmp_path/bloomline.toml`` (store and mailbox beside it)."""
+    path = tmp_path / "bloomline.toml"
+    path.write_text(CONFIG.format(database=(tmp_path / database).as_posix(), mailbox=(tmp_path / "mailbox").as_posix(),
+                                  members=members))
+    return load_config(path)
 
 
 def _write(engine, rows: list[dict]) -> None:
