@@ -32,7 +32,14 @@ from monitor.config.model_setup import model_spec
 from monitor.forecasting.cycle import daily_forecasts, forecast_save_times, outlook_drivers, station_readings
 from monitor.forecasting.drivers import StationSeries, surface_relaxation_days
 from monitor.forecasting.quantities import QUANTITIES, UNITS
-from monitor.scenarios.request import FlowAction, IntakeAction, LoadAction, WhatIfRequest, action_dict
+from monitor.scenarios.request import (
+    FlowAction,
+    IntakeAction,
+    LoadAction,
+    RequestError,
+    WhatIfRequest,
+    action_dict,
+)
 from monitor.store.runs import latest_checkpoint
 from monitor.timeutil import as_utc, from_epoch_days
 
@@ -123,7 +130,8 @@ def run_what_if(engine: Engine, config: Config, wb: WaterBodyConfig, request: Wh
                 now: dt.datetime) -> dict:
     """The scenario of ``request`` from the newest analysis of ``wb`` at or before ``now`` (aware UTC),
     as a JSON-ready dict with the caution. Reads the store, never writes. NoAnalysis when no
-    analysis is stored yet."""
+    analysis (that fits the configuration) is stored yet; RequestError when the actions cannot be put
+    into the outlook's drivers."""
     found = latest_checkpoint(engine, wb.id, at_or_before=now)
     if found is None:
         raise NoAnalysis(f"no analysis of {wb.name} is stored yet: a what-if starts from the latest "
@@ -131,7 +139,11 @@ def run_what_if(engine: Engine, config: Config, wb: WaterBodyConfig, request: Wh
     analysis = as_utc(found[0])
     checkpoint = Checkpoint.from_bytes(found[1])
     spec = model_spec(wb)
-    states, params, _gains = split(checkpoint, spec)
+    try:
+        states, params, _gains = split(checkpoint, spec)
+    except ValueError as exc:
+        raise NoAnalysis(f"the latest analysis of {wb.name} does not fit its configuration (basins or groups "
+                         f"changed since: {exc}); the next cycle makes one that does") from None
     members = min(request.members or states.shape[0], states.shape[0])
     states = states[:members]
     params = {k: v[:members] for k, v in params.items()} or None
@@ -139,8 +151,11 @@ def run_what_if(engine: Engine, config: Config, wb: WaterBodyConfig, request: Wh
     series = StationSeries(station_readings(engine, config, wb, analysis - OUTLOOK_READINGS, analysis))
     drivers = member_drivers(outlook_drivers(engine, config, wb, series, analysis, horizon), members)
     t0 = checkpoint.time_d
-    scenario = sc.apply_actions(spec, drivers, _numeric_actions(request, wb), t0,
-                                surface_relaxation_d=[surface_relaxation_days(b.mean_depth_m) for b in wb.basins])
+    try:
+        scenario = sc.apply_actions(spec, drivers, _numeric_actions(request, wb), t0, surface_relaxation_d=[
+            surface_relaxation_days(b.mean_depth_m) for b in wb.basins])
+    except ValueError as exc:   # e.g. the inflows that would make up a release are dry in the outlook
+        raise RequestError(str(exc)) from None
     save = forecast_save_times(t0, horizon)
     pair = sc.paired_run(states, scenario, t0, save, params=params)
     thresholds = tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels)

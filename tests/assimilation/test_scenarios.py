@@ -312,6 +312,13 @@ def test_release_through_a_basin_that_no_inflow_feeds_is_refused():
         apply_actions(dry, one, [Release(0, 1.0, 0.0, 1.0)], JUNE_FIRST_2026, surface_relaxation_d=1.0)
 
 
+def test_release_while_the_feeding_inflows_are_dry_is_refused():
+    spec, drivers, _E, _p = reservoir()
+    dry = replace(drivers, inflow_m3_s=np.zeros_like(drivers.inflow_m3_s))
+    with pytest.raises(ValueError, match="the inflows feeding basin 'north_arm' carry no water during the release"):
+        apply_actions(spec, dry, [Release(0, 1.0, 0.0, 1.0)], JUNE_FIRST_2026, surface_relaxation_d=1.0)
+
+
 def test_action_after_the_last_driver_time_is_refused():
     spec, drivers, _E, _p = reservoir(days=2)
     with pytest.raises(ValueError, match="holds none of the driver times"):
