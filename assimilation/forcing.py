@@ -7,6 +7,7 @@ becomes surface PAR through the spec's ``par_fraction``.
 """
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
@@ -71,3 +72,23 @@ def forcing_at(drivers: Drivers, spec: ModelSpec, times_d) -> Forcing:
     if drivers.inflow_chlorophyll_ugL is not None:
         conc[..., 2:] = _interpolate(t, drivers.inflow_chlorophyll_ugL, times)
     return Forcing(temperature, spec.par_fraction * shortwave, inflow, conc)
+
+
+def member_drivers(scenarios: list[Drivers], n_members: int) -> Drivers:
+    """One :class:`Drivers` for an ensemble of ``n_members`` spread over driver scenarios.
+
+    Member m runs under scenario ``m % len(scenarios)``: its water
+    temperature becomes that scenario's series, so the result has a
+    per-member water temperature (T, M, B) [°C]; every other driver is the
+    first scenario's (the scenarios differ in water temperature only, and
+    must share its time axis).
+    """
+    if not scenarios:
+        raise ValueError("member_drivers needs at least one driver scenario")
+    base = scenarios[0]
+    for d in scenarios[1:]:
+        if d.time_d.shape != base.time_d.shape or not np.array_equal(d.time_d, base.time_d):
+            raise ValueError("driver scenarios must share one time axis")
+    member_scenario = np.arange(n_members) % len(scenarios)
+    temps = np.stack([d.water_temperature_C for d in scenarios])          # (S, T, B)
+    return dataclasses.replace(base, water_temperature_C=np.transpose(temps[member_scenario], (1, 0, 2)))

@@ -58,11 +58,13 @@ def create_app(config: Config | str | os.PathLike | None = None, *,
     from web.pages import pages
     from web.push import push_api
     from web.verification import verification
+    from web.whatif import whatif
 
     app.register_blueprint(pages)
     app.register_blueprint(api, url_prefix="/api/v1")
     app.register_blueprint(push_api)
     app.register_blueprint(verification)
+    app.register_blueprint(whatif)
 
     @app.context_processor
     def _globals():

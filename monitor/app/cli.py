@@ -11,6 +11,7 @@ import click
 
 from monitor.app.hindcast_cli import hindcast
 from monitor.app.ingest_cli import ingest
+from monitor.app.whatif_cli import what_if
 from monitor.config import ConfigError, load_config
 from monitor.timeutil import now_utc, parse_utc
 
@@ -144,6 +145,7 @@ def demo(workdir: str, serve_: bool, as_json: bool, port: int, feeds: str | None
 
 main.add_command(ingest)
 main.add_command(hindcast)
+main.add_command(what_if)
 
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())

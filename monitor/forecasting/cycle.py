@@ -13,7 +13,6 @@
 
 from __future__ import annotations
 
-import dataclasses
 import datetime as dt
 import math
 from dataclasses import dataclass, field
@@ -22,12 +21,13 @@ import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
-from assimilation import filter_cycle, integrate, transform
+from assimilation import filter_cycle
 from assimilation.augmentation import split
 from assimilation.checkpoint import Checkpoint
 from assimilation.filter_config import FilterConfig
 from assimilation.first_guess import DEFAULT_FIRST_GUESS
-from assimilation.forecast import QUANTILES, daily_statistics
+from assimilation.forcing import member_drivers
+from assimilation.forecast import QUANTILES, daily_statistics, simulate_with_model_error
 from assimilation.observe import OBSERVABLE_KINDS, Observations
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 from monitor.alerting import rules as alerts
@@ -38,7 +38,6 @@ from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
 from monitor.forecasting.publish import publish
-from monitor.forecasting.quantities import QUANTITIES
 from monitor.store import runs as store
 from monitor.store.late import checkpoint_created, late_readings
 from monitor.store.readings import latest_driver_forecast, readings_frame
@@ -184,6 +183,26 @@ def late_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: 
                      f"(earliest {earliest:%Y-%m-%d %H:%M} UTC){older}")
 
 
+def outlook_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, series: StationSeries,
+                    analysis: dt.datetime, horizon_days: int, *, history: ObservedHistory | None = None,
+                    notes: list[str] | None = None) -> list[Drivers]:
+    """The forecast's driver scenarios from ``analysis`` (aware UTC) over ``horizon_days``: the newest
+    weather forecast issued by then (else a persistence climatology), one scenario per entry of
+    :data:`DRIVER_SCENARIOS_C`. ``series`` holds the last two weeks of readings of ``wb``'s stations;
+    ``history`` (the observed daily history) gives the water temperature's seasonal climatology used
+    when there is no weather feed; substitutions are named in ``notes``."""
+    weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
+               if wb.weather_station else pd.DataFrame())
+    climatology = {}
+    if history is not None:
+        centre_d = float(to_epoch_days(analysis)) + horizon_days / 2
+        climatology = {b.id: c for b in wb.basins
+                       if (c := seasonal_mean(history, b.id, "water_temperature", centre_d)) is not None}
+    return forecast_drivers(series, weather, config, wb, analysis, horizon_days,
+                            temperature_offsets_C=DRIVER_SCENARIOS_C, temperature_climatology_C=climatology,
+                            notes=notes)
+
+
 def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
            *, season_start: dt.datetime | None = None, replay: bool = False) -> CycleInputs:
     """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC).
@@ -211,15 +230,8 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
     notes: list[str] = []
     drivers = observed_drivers(series, config, wb, start, analysis, notes)
     horizon = wb.alerts.horizon_days
-    weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
-               if wb.weather_station else pd.DataFrame())
     history = observed_history(engine, config, wb, analysis)
-    centre_d = float(to_epoch_days(analysis)) + horizon / 2
-    climatology = {b.id: c for b in wb.basins
-                   if (c := seasonal_mean(history, b.id, "water_temperature", centre_d)) is not None}
-    scenarios = forecast_drivers(series, weather, config, wb, analysis, horizon,
-                                 temperature_offsets_C=DRIVER_SCENARIOS_C, temperature_climatology_C=climatology,
-                                 notes=notes)
+    scenarios = outlook_drivers(engine, config, wb, series, analysis, horizon, history=history, notes=notes)
     return CycleInputs(
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
@@ -303,46 +315,36 @@ def _basin_sensor_gains(gains: np.ndarray, sensor_basins: tuple[str, ...], basin
 
 
 def _forecast(states, params, spec, inputs: CycleInputs) -> dict:
-    """Run the analysis ensemble to the horizon, members spread over the driver scenarios.
-
-    The forecast carries the filter's stochastic model error: at the end of
-    each forecast day every member's state is multiplied by a log-normal
-    factor of sd ``model_error_log_sd_per_d`` (one day), as between analyses,
-    so the ensemble's spread grows as the filter assumes it does. The draws
-    come from a generator seeded by the cycle (reproducible; a paired what-if
-    run with the same seed gets the same draws).
-    """
-    layout = StateLayout(spec)
-    M = states.shape[0]
+    """Run the analysis ensemble to the horizon, members spread over the driver scenarios, with the
+    filter's model error (:func:`assimilation.forecast.simulate_with_model_error`)."""
     t0 = inputs.analysis_d
-    scenarios = inputs.forecast_drivers
-    base = scenarios[0]
-    member_scenario = np.arange(M) % len(scenarios)
-    temps = np.stack([d.water_temperature_C for d in scenarios])          # (S, T, B)
-    drivers = dataclasses.replace(base, water_temperature_C=np.transpose(temps[member_scenario], (1, 0, 2)))
-    rng = np.random.default_rng([inputs.seed, int(round(t0 * 24))])
-    sd, floor = inputs.filter.model_error_log_sd_per_d, inputs.filter.state_floor_ugL
-    x, parts = states, []
-    for day in range(inputs.horizon_days):
-        save = t0 + day + np.arange(0 if day == 0 else 1, 25) / 24.0
-        part = integrate.simulate(x, spec, drivers, t0 + day, save, params=params or None)
-        parts.append(part)
-        x = part[-1]
-        if sd > 0:
-            x = transform.from_log(transform.to_log(x, floor) + sd * rng.standard_normal(x.shape))
-    traj = np.concatenate(parts, axis=0)
-    save = t0 + np.arange(0, 24 * inputs.horizon_days + 1) / 24.0
-    chl = layout.chlorophyll(traj)
-    cyano = [g for g, grp in enumerate(spec.groups) if grp.is_cyanobacteria]
-    series = {
-        "cyanobacteria_chlorophyll": chl[..., cyano].sum(axis=-1),
-        "total_chlorophyll": chl.sum(axis=-1),
-        "nitrogen": layout.nitrogen(traj),
-        "phosphorus": layout.phosphorus(traj),
-    }
-    return {q: daily_statistics(save, series[q], t0, inputs.horizon_days,
-                                inputs.thresholds_ugL if q == alerts.QUANTITY else ())
+    save = forecast_save_times(t0, inputs.horizon_days)
+    drivers = member_drivers(inputs.forecast_drivers, states.shape[0])
+    traj = simulate_with_model_error(states, spec, drivers, t0, inputs.horizon_days, params=params or None,
+                                     log_sd_per_d=inputs.filter.model_error_log_sd_per_d,
+                                     floor_ugL=inputs.filter.state_floor_ugL, seed=forecast_seed(inputs))
+    return daily_forecasts(save, traj, spec, t0, inputs.horizon_days, inputs.thresholds_ugL)
+
+
+def forecast_save_times(t0_d: float, horizon_days: int) -> np.ndarray:
+    """The forecast's saved times: hourly from ``t0_d`` to the horizon [epoch days]."""
+    return t0_d + np.arange(0, 24 * horizon_days + 1) / 24.0
+
+
+def daily_forecasts(save_d: np.ndarray, traj: np.ndarray, spec: ModelSpec, t0_d: float, horizon_days: int,
+                    thresholds_ugL) -> dict:
+    """Daily statistics of every forecast quantity of a trajectory (S, M, n_state) [µg/L];
+    alert-level probabilities for the alerting quantity only."""
+    series = quantity_series(traj, spec)
+    return {q: daily_statistics(save_d, series[q], t0_d, horizon_days,
+                                thresholds_ugL if q == alerts.QUANTITY else ())
             for q in QUANTITIES}
+
+
+def forecast_seed(inputs: CycleInputs) -> list[int]:
+    """Seed of the forecast's model-error draws: the cycle's seed and its analysis hour (a paired
+    what-if run uses the same)."""
+    return [inputs.seed, int(round(inputs.analysis_d * 24))]
 
 
 def _jsonable(obj):

@@ -171,8 +171,7 @@ def forecast_drivers(series: StationSeries, weather_forecast: pd.DataFrame, conf
         start_temps.append(float(water.iloc[-1]) if len(water) else FALLBACK["water_temperature"])
         both = pd.DataFrame({"w": water, "a": past_air.reindex(water.index)}).dropna().tail(7)
         offsets.append(float((both.w - both.a).mean()) if len(both) else 0.0)
-        # relaxation time ≈ 1.5 d per 4 m of depth (common practice)
-        taus.append(1.5 * max(basin.mean_depth_m, 1.0) / 4.0)
+        taus.append(surface_relaxation_days(basin.mean_depth_m))
     persist = {v: [max(float(d.iloc[-1]), 0.0) if len(d := series.daily_mean(g, v)) else FALLBACK[v]
                    for g in src.gauges] for v in ("discharge", "nitrate", "srp")}
     q, n, p = (np.tile(np.asarray(persist[v], dtype=float), (len(index), 1)) for v in ("discharge", "nitrate", "srp"))
@@ -196,6 +195,13 @@ def forecast_drivers(series: StationSeries, weather_forecast: pd.DataFrame, conf
         out.append(Drivers(time_d=np.asarray(to_epoch_days(index)), water_temperature_C=temps,
                            shortwave_W_m2=light, inflow_m3_s=q, inflow_nitrogen_ugL=n, inflow_phosphorus_ugL=p))
     return out
+
+
+def surface_relaxation_days(mean_depth_m: float) -> float:
+    """Time constant [d] with which a basin's water temperature relaxes toward the equilibrium
+    temperature through surface heat exchange, for its mean depth [m]: about 1.5 d per 4 m
+    (common practice; Edinger, Duttweiler & Geyer 1968)."""
+    return 1.5 * max(mean_depth_m, 1.0) / 4.0
 
 
 def _relax(start: np.ndarray, equilibrium: np.ndarray, tau_d: np.ndarray, dt_d: float) -> np.ndarray:

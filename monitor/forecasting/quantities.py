@@ -6,6 +6,10 @@ store's read queries (:mod:`monitor.store.status`) and the API offer them.
 
 from __future__ import annotations
 
+import numpy as np
+
+from assimilation.spec import ModelSpec, StateLayout
+
 #: Forecast quantities, in the order they are computed and listed.
 QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll", "nitrogen", "phosphorus")
 
@@ -14,3 +18,16 @@ QUANTITIES = ("cyanobacteria_chlorophyll", "total_chlorophyll", "nitrogen", "pho
 #: reactive phosphorus as P (``assimilation.spec``).
 UNITS = {"cyanobacteria_chlorophyll": "ug/L", "total_chlorophyll": "ug/L", "nitrogen": "ug N/L",
          "phosphorus": "ug P/L"}
+
+
+def quantity_series(traj: np.ndarray, spec: ModelSpec) -> dict[str, np.ndarray]:
+    """Each forecast quantity of model states ``traj`` (..., n_state) [µg/L], as (..., B)."""
+    layout = StateLayout(spec)
+    chl = layout.chlorophyll(traj)
+    cyano = [g for g, grp in enumerate(spec.groups) if grp.is_cyanobacteria]
+    return {
+        "cyanobacteria_chlorophyll": chl[..., cyano].sum(axis=-1),
+        "total_chlorophyll": chl.sum(axis=-1),
+        "nitrogen": layout.nitrogen(traj),
+        "phosphorus": layout.phosphorus(traj),
+    }
