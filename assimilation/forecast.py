@@ -105,18 +105,22 @@ def simulate_with_model_error(states: np.ndarray, spec, drivers, t0_d: float, ho
     model-error process the filter assumes between analyses (a random walk in
     log space; Evensen 2009, *Data Assimilation*, 2nd ed., ch. 4), so the
     forecast's spread grows as the filter's does. ``seed`` seeds the draws: two
-    runs with the same seed (a what-if and the run without it) draw the same.
-    The saved state at each day's end is the state before that day's draw.
+    runs with the same seed (a what-if and the run without it) draw the same,
+    and each member draws from its own stream, so the first m members of a run
+    draw as the first m of a larger one. The saved state at each day's end is
+    the state before that day's draw.
     """
     from assimilation import integrate, transform  # local: integrate imports this module's neighbours
 
-    rng = np.random.default_rng(seed)
     x, parts = np.asarray(states, dtype=float), []
+    base = list(np.atleast_1d(seed)) if seed is not None else []
+    streams = [np.random.default_rng([*base, m]) for m in range(x.shape[0])]
     for day in range(int(horizon_days)):
         save = t0_d + day + np.arange(0 if day == 0 else 1, 25) / 24.0
         part = integrate.simulate(x, spec, drivers, t0_d + day, save, params=params)
         parts.append(part)
         x = part[-1]
         if log_sd_per_d > 0:
-            x = transform.from_log(transform.to_log(x, floor_ugL) + log_sd_per_d * rng.standard_normal(x.shape))
+            noise = np.stack([s.standard_normal(x.shape[1]) for s in streams])
+            x = transform.from_log(transform.to_log(x, floor_ugL) + log_sd_per_d * noise)
     return np.concatenate(parts, axis=0)

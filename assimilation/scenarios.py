@@ -368,7 +368,7 @@ def paired_run(states: np.ndarray, scenario: ScenarioDrivers, t0_d: float, save_
     if model_error_log_sd_per_d > 0:
         from assimilation.forecast import simulate_with_model_error
 
-        horizon = int(round((save[-1] - t0_d)))
+        horizon = int(round(save[-1] - t0_d))
         runs = [simulate_with_model_error(states, scenario.spec, d, t0_d, horizon, params=params,
                                           log_sd_per_d=model_error_log_sd_per_d, floor_ugL=floor_ugL, seed=seed)
                 for d in (scenario.without, scenario.with_action)]

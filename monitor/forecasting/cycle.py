@@ -38,6 +38,7 @@ from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
 from monitor.forecasting.publish import publish
+from monitor.forecasting.quantities import QUANTITIES, quantity_series
 from monitor.store import runs as store
 from monitor.store.late import checkpoint_created, late_readings
 from monitor.store.readings import latest_driver_forecast, readings_frame

@@ -1,9 +1,10 @@
 """The process model's recent skill, shown beside a what-if so the operator can judge how far to trust it.
 
-The stored runs of the last :data:`WINDOW_DAYS` days are paired with the readings that followed
-them (:func:`monitor.verification.pairs.water_body_pairs`, read-only) and scored by lead day
-(:func:`monitor.verification.summary.skill_table`): the CRPS skill of Bloomline's ensemble against
-the persistence ensemble, 1 − CRPS/CRPS_persistence (Hersbach 2000, Wea. Forecasting 15:559),
+The live record's score records of the last :data:`WINDOW_DAYS` days
+(:func:`monitor.verification.live.stored_records`, read-only) are summarised by lead day
+(:func:`monitor.verification.summary.skill_table`): the CRPS skill of the process model's own
+ensemble (a what-if runs it, not the published blend) against the persistence ensemble,
+1 − CRPS/CRPS_persistence (Hersbach 2000, Wea. Forecasting 15:559),
 for the cyanobacterial chlorophyll-a the alert levels apply to. Positive: better than assuming
 that the coming days look like the last ones; zero or negative: no better.
 """
@@ -18,7 +19,7 @@ from sqlalchemy.engine import Engine
 from monitor.alerting.rules import QUANTITY
 from monitor.config import Config, WaterBodyConfig
 from monitor.timeutil import as_utc
-from monitor.verification.pairs import water_body_pairs
+from monitor.verification.live import stored_records
 from monitor.verification.summary import skill_table
 
 WINDOW_DAYS = 60
@@ -33,8 +34,9 @@ def recent_skill(engine: Engine, config: Config, wb: WaterBodyConfig, *, now: dt
     out = {"window_days": WINDOW_DAYS, "quantity": QUANTITY, "reference": REFERENCE,
            "measure": "CRPS skill against the persistence ensemble, 1 - CRPS/CRPS_reference (1 is perfect, "
                       "0 no better than persistence, below 0 worse)"}
-    pairs = water_body_pairs(engine, engine, config, wb, first=first, last=last)
-    table = skill_table(pairs, by=["quantity", "lead_days"])
+    records = stored_records(engine, wb.id, since=first)
+    records = records[records.valid_utc <= last] if len(records) else records
+    table = skill_table(records, by=["quantity", "lead_days"], forecaster="process_model")
     if len(table):
         table = table[(table.quantity == QUANTITY) & (table.reference == REFERENCE)]
     if not len(table):

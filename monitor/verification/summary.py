@@ -89,12 +89,13 @@ def score_table(records: pd.DataFrame, by: list[str], levels: dict[str, tuple[fl
     return pd.DataFrame(rows)
 
 
-def skill_table(records: pd.DataFrame, by: list[str]) -> pd.DataFrame:
-    """CRPS skill of Bloomline against each baseline, ``1 − CRPS/CRPS_ref``, on the pairs both forecast."""
+def skill_table(records: pd.DataFrame, by: list[str], forecaster: str = "bloomline") -> pd.DataFrame:
+    """CRPS skill of ``forecaster`` (the published forecast by default) against each baseline,
+    ``1 − CRPS/CRPS_ref``, on the pairs both forecast."""
     if records.empty:
         return pd.DataFrame()
     key = ["run_id", "water_body", "basin_id", "quantity", "lead_days"]
-    bl = records[records.forecaster == "bloomline"].set_index(key)
+    bl = records[records.forecaster == forecaster].set_index(key)
     rows = []
     for ref in BASELINES:
         other = records[records.forecaster == ref].set_index(key)[["crps"]].rename(columns={"crps": "crps_ref"})

@@ -4,15 +4,18 @@ from __future__ import annotations
 
 import datetime as dt
 
+import numpy as np
 import pytest
 from sqlalchemy import select
 
+from assimilation.forecast import QUANTILES
 from monitor.alerting.caution import CAUTION
 from monitor.scenarios.request import parse_request
 from monitor.scenarios.run import SCENARIO_NOTICE, NoAnalysis, run_what_if
 from monitor.scenarios.skill import recent_skill
 from monitor.store import schema, status
 from monitor.store.db import open_store
+from monitor.store.runs import load_forecast_members
 from tests.monitor.scenarios.wrenfield import ANALYSIS, FIRST, wrenfield_config, wrenfield_store
 
 RELEASE = {"kind": "release", "basin": "upper-arm", "flow_m3s": 3, "from_day": 1, "days": 3}
@@ -46,29 +49,36 @@ def test_a_scenario_writes_nothing_to_the_store(store):
     assert _dump(engine) == before
 
 
-def _stored(engine, quantity="cyanobacteria_chlorophyll") -> dict:
+def _process_members(engine, quantity="cyanobacteria_chlorophyll") -> dict:
+    """The issued run's own process-model members (days, M) per basin, as stored for verification."""
     run = status.latest_run(engine, "wrenfield")
     assert run["analysis_utc"] == ANALYSIS
-    return {(v["basin_id"], round((v["valid_utc"] - ANALYSIS) / dt.timedelta(days=1)), v["statistic"]): v["value"]
-            for v in status.run_values(engine, run["id"], quantity=quantity)}
+    stored = load_forecast_members(engine, [run["id"]])
+    return {basin: arr for (_, basin, q, forecaster), (_, arr) in stored.items()
+            if q == quantity and forecaster == "process_model"}
 
 
-@pytest.mark.parametrize(("action", "rel"), [(LOAD, 0.0), (RELEASE, 1e-9)])
-def test_without_the_action_the_scenario_is_the_forecast_the_cycle_issued(store, action, rel):
-    # same members, parameters and drivers: a load change adds no inflow column, so the run without it
-    # is the issued forecast bit for bit; a release adds zero-flow columns, equal to round-off
+@pytest.mark.parametrize(("action", "rel"), [(LOAD, 1e-5), (RELEASE, 1e-5)])
+def test_without_the_action_the_scenario_is_the_process_forecast_the_cycle_issued(store, action, rel):
+    # same members, parameters, drivers and model-error draws: the run without the action is the cycle's
+    # process-model forecast (stored as float32 member daily means; a release adds zero-flow columns)
     result = _what_if(store, {"actions": [action]})
-    stored = _stored(store[1])
+    stored = _process_members(store[1])
     assert result["analysis_utc"] == "2026-08-12T00:00:00Z" and result["members"] == 20
+    assert stored, "the cycle stored its process-model members"
     checked = 0
     for basin in result["basins"]:
-        for day, levels in zip(basin["quantities"]["cyanobacteria_chlorophyll"], basin["levels"]):
-            for stat in ("q05", "q25", "q50", "q75", "q95", "mean"):
-                assert day["without"][stat] == pytest.approx(stored[(basin["id"], day["day"], stat)], rel=rel, abs=0)
+        if basin["id"] not in stored:
+            continue
+        members = stored[basin["id"]][:, :20]
+        for day in basin["quantities"]["cyanobacteria_chlorophyll"]:
+            row = members[day["day"]]
+            want = {"mean": row.mean(), **{f"q{round(q * 100):02d}": v
+                                           for q, v in zip(QUANTILES, np.quantile(row, QUANTILES))}}
+            for stat, value in want.items():
+                assert day["without"][stat] == pytest.approx(value, rel=rel, abs=1e-6)
                 checked += 1
-            for n, p in levels["without"].items():
-                assert p == stored[(basin["id"], day["day"], f"p_level_{n}")]
-    assert checked == 2 * 6 * 6
+    assert checked >= 6 * 8
 
 
 def test_a_release_through_the_upper_arm_dilutes_it_and_costs_flow_times_duration(store):
