@@ -7,9 +7,12 @@ before the analysis, pooled over the water body's basins:
 * component weights ∝ 1/CRPS² of each component's record, shrunk towards
   ``PRIOR_WEIGHTS`` with the weight of ``PRIOR_DAYS`` verified days
   (:func:`assimilation.blend.inverse_crps_weights`);
-* the uncalibrated blend's (``blend_raw``) mean log error and the ratio of its
-  root-mean-square log error to its log spread (with the finite-ensemble
-  factor (M + 1)/M), shrunk towards no correction in the same way.
+* the uncalibrated blend's (``blend_raw``) mean log error, and the factor on
+  its log spread that makes its central 90 % interval cover 90 % of its
+  record: the 90th percentile of |log error − mean log error| / (log spread ·
+  sqrt((M + 1)/M)) divided by the normal quantile 1.645 (coverage matching, the
+  aim of EMOS; Gneiting et al. 2005), both shrunk towards no correction in the
+  same way.
 
 With no record yet the documented priors apply: the process model and the
 two statistical forecasts in the proportions of ``PRIOR_WEIGHTS`` (Bloomline's
@@ -39,6 +42,9 @@ COMPONENTS = (PROCESS, "persistence_ensemble", "statistical", "climatology")
 PRIOR_WEIGHTS = {PROCESS: 0.4, "persistence_ensemble": 0.3, "statistical": 0.3}
 PRIOR_DAYS = 20
 RECORD_DAYS = 60
+#: The central interval whose coverage the calibration matches, and its standard normal half-width.
+COVERAGE = 0.90
+NORMAL_Z_95 = 1.6448536269514722
 
 
 def _shrink(n: int) -> float:
@@ -61,10 +67,13 @@ def _settings(stats: pd.DataFrame, raw: pd.DataFrame) -> LeadSettings:
     err = raw.log_mean.to_numpy(float) - np.log(np.maximum(raw.observed.to_numpy(float), LOG_FLOOR_UGL))
     m = raw["members"].to_numpy(float)
     bias = float(err.mean())
-    spread = float(np.sqrt(np.mean(raw.log_sd.to_numpy(float) ** 2 * (m + 1) / m)))
-    rmse = float(np.sqrt(np.mean((err - bias) ** 2)))
+    sd = raw.log_sd.to_numpy(float) * np.sqrt((m + 1) / m)
+    ok = sd > 0
     a = _shrink(len(raw))
-    factor = float(np.exp(a * np.log(rmse / spread))) if spread > 0 and rmse > 0 else 1.0
+    if not ok.any():
+        return LeadSettings(weights, bias_ln=a * bias)
+    ratio = float(np.quantile(np.abs(err[ok] - bias) / sd[ok], COVERAGE)) / NORMAL_Z_95
+    factor = float(np.exp(a * np.log(ratio))) if ratio > 0 else 1.0
     return LeadSettings(weights, bias_ln=a * bias, spread_factor=factor)
 
 
