@@ -91,12 +91,18 @@ def target_level(p_max: Mapping[int, float], observed_ugL: float | None, levels:
 
 def decide(level: int, quiet_cycles: int, p_max: Mapping[int, float], observed_ugL: float | None, *,
            levels: Sequence[AlertLevel], warn_probability: float, clear_after_cycles: int,
-           have_forecast: bool = True) -> Decision:
+           have_forecast: bool = True, clear_probability: float | None = None) -> Decision:
     """Apply the alert rule with hysteresis to one basin for one cycle (pure).
 
     ``level`` and ``quiet_cycles`` are the basin's status before the cycle;
     ``have_forecast`` False means this cycle produced no forecast for the
     basin (it may raise on the observation but does not count as quiet).
+    Hysteresis in probability as well as in time: a level is raised at
+    ``warn_probability`` but a cycle counts towards lowering it only when the
+    probability has fallen below ``clear_probability`` (default half of
+    ``warn_probability``); in between, the level stands and the count restarts
+    (common practice for warning thresholds, so that a probability hovering
+    near the threshold does not raise and clear the level again and again).
     """
     observed_ugL = _clean(observed_ugL)
     target, why = target_level(p_max, observed_ugL, levels, warn_probability)
@@ -110,6 +116,11 @@ def decide(level: int, quiet_cycles: int, p_max: Mapping[int, float], observed_u
     if not have_forecast:
         return Decision(level, quiet_cycles, target, False, p_current, observed_ugL,
                         "no forecast this cycle: the alert is kept and the clearing count not advanced")
+    clear_below = warn_probability / 2 if clear_probability is None else clear_probability
+    if p_current is not None and p_current >= clear_below:
+        return Decision(level, 0, target, False, p_current, observed_ugL,
+                        f"{levels[level - 1].name} kept: forecast P = {p_current:.2f} is below {warn_probability:g} "
+                        f"but not yet below {clear_below:g}")
     quiet = quiet_cycles + 1
     threshold = levels[level - 1].chlorophyll_ugL
     observed_below = observed_ugL is None or observed_ugL < threshold
@@ -195,7 +206,7 @@ def evaluate_run(engine: Engine, config, water_body_id: str, run_id: int,
             quiet = int(st.quiet_cycles) if st is not None else 0
             d = decide(level, quiet, maxima.get(basin.id, {}), observed.get(basin.id), levels=rule.levels,
                        warn_probability=rule.warn_probability, clear_after_cycles=rule.clear_after_cycles,
-                       have_forecast=basin.id in maxima)
+                       have_forecast=basin.id in maxima, clear_probability=rule.clear_probability)
             since = t if (st is None or d.changed) else st.since_utc
             values = dict(level=d.level, since_utc=since, quiet_cycles=d.quiet_cycles, updated_utc=t)
             if st is None:

@@ -47,6 +47,7 @@ class AlertConfig:
     warn_probability: float = 0.5
     horizon_days: int = 7
     clear_after_cycles: int = 3
+    clear_probability: float | None = None  # a cycle counts towards clearing below this; None: warn_probability / 2
 
 
 @dataclass(frozen=True)

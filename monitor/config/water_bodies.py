@@ -79,11 +79,14 @@ def _alerts(a: Reader, use: str) -> AlertConfig:
         framework=framework, levels=_levels(a, framework),
         warn_probability=a.get("warn_probability", float, 0.5),
         horizon_days=a.get("horizon_days", int, 7),
-        clear_after_cycles=a.get("clear_after_cycles", int, 3))
+        clear_after_cycles=a.get("clear_after_cycles", int, 3),
+        clear_probability=a.get("clear_probability", float, None))
     if not 0 < alerts.warn_probability <= 1:
         raise a.error("warn_probability", f"expected a probability in (0, 1], got {alerts.warn_probability}")
     if not 1 <= alerts.horizon_days <= 30:
         raise a.error("horizon_days", f"expected 1 to 30 days, got {alerts.horizon_days}")
+    if alerts.clear_probability is not None and not 0 <= alerts.clear_probability <= alerts.warn_probability:
+        raise a.error("clear_probability", f"expected a probability in [0, warn_probability], got {alerts.clear_probability}")
     if alerts.clear_after_cycles < 1:
         raise a.error("clear_after_cycles", f"expected at least 1, got {alerts.clear_after_cycles}")
     a.finish()

@@ -199,8 +199,9 @@ def test_full_episode_gives_one_raise_and_one_clear_with_emails(store):
         run = store_run(engine, day, {"north": p})
         for e in evaluate_run(engine, cfg, "tarnby", run, {"north": obs}, now=T0 + day * DAY):
             changes.append((day, e["from_level"], e["to_level"]))
-    # raised on day 1; day 4 quiet (1 of 2), day 5 fires again (reset), days 6–7 quiet → cleared on day 7
-    assert changes == [(1, 0, 1), (7, 1, 0)]
+    # raised on day 1; day 4 quiet (1 of 2), day 5 fires again (reset); day 6 (p 0.3) is below the warning
+    # probability 0.5 but not below the clearing probability 0.25 (reset again); days 7–8 quiet → cleared on day 8
+    assert changes == [(1, 0, 1), (8, 1, 0)]
     with engine.connect() as conn:
         mails = conn.execute(select(outbox).order_by(outbox.c.id)).all()
     assert [m.recipient for m in mails] == ["bo@tarnby.example"] * 2
@@ -249,3 +250,22 @@ def test_an_unknown_run_or_water_body_is_refused(store):
     with pytest.raises(ValueError, match="no forecast run with id 999"):
         evaluate_run(engine, cfg, "tarnby", 999, {}, now=T0)
     assert count(engine, alert_events) == 0
+
+
+def test_a_probability_hovering_around_the_warning_threshold_does_not_flap_the_level():
+    # hysteresis in probability: raised at 0.5, counted towards clearing only below 0.25
+    level, quiet, changes = 0, 0, 0
+    for p in [0.55, 0.45, 0.52, 0.40, 0.60, 0.35, 0.51, 0.30] * 3:
+        d = decide(level, quiet, {1: p}, None, levels=LEVELS, warn_probability=0.5, clear_after_cycles=2)
+        changes += d.changed
+        level, quiet = d.level, d.quiet_cycles
+    assert changes == 1 and level == 1
+
+
+def test_the_level_clears_once_the_probability_stays_below_the_clearing_threshold():
+    level, quiet = 1, 0
+    for _ in range(2):
+        d = decide(level, quiet, {1: 0.2}, 0.1, levels=LEVELS, warn_probability=0.5, clear_after_cycles=2,
+                   clear_probability=0.3)
+        level, quiet = d.level, d.quiet_cycles
+    assert level == 0 and d.changed
