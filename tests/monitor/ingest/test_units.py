@@ -62,13 +62,20 @@ def test_rfu_without_calibration_is_rejected_with_a_hint():
 
 
 def test_unknown_unit_names_what_is_accepted():
-    with pytest.raises(UnitError, match=r"unknown unit 'furlongs' for secchi_depth; expected .*ft.*m"):
+    with pytest.raises(UnitError, match=r"unknown unit 'furlongs' for secchi_depth; expected m, cm, mm, ft, in$"):
         conversion("secchi_depth", "furlongs")
 
 
+def test_unknown_unit_lists_the_spellings_people_write():
+    with pytest.raises(UnitError, match=r"expected ug/L N, mg/L N, ug/L NO3, mg/L NO3, ug/L, mg/L, ppb, ppm$"):
+        conversion("nitrate", "furlongs")
+    with pytest.raises(UnitError, match=r"expected ug/L P, mg/L P, ug/L PO4, mg/L PO4, ug/L, mg/L, ppb, ppm$"):
+        conversion("srp", "mmol/L")
+
+
 def test_unknown_variable_is_rejected():
-    with pytest.raises(UnitError, match="unknown variable 'turbidity'"):
-        conversion("turbidity", "NTU")
+    with pytest.raises(UnitError, match="unknown variable 'salinity'"):
+        conversion("salinity", "PSU")
 
 
 def test_temperature_unit_is_not_accepted_for_a_concentration():
