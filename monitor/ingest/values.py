@@ -31,7 +31,6 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
 import numpy as np
-import pandas as pd
 
 from monitor.ingest.cells import parse_numbers
 from monitor.ingest.units import UnitError, resolve
@@ -85,9 +84,11 @@ def read_values(cells: np.ndarray, variable: np.ndarray, unit: np.ndarray, stati
     notes: the batch's notes, extended (units read without their annotation).
     """
     own = {sid: frozenset(getattr(st, "stored_only", ())) for sid, st in known.items()}
-    stored_only = np.array([v not in VARIABLES and v in own.get(s, ()) for v, s in zip(variable, station)],
-                           dtype=bool)
-    unknown = ~pd.Series(variable).isin(list(VARIABLES)).to_numpy() & ~stored_only
+    n = len(cells)
+    canonical = np.fromiter((v in VARIABLES for v in variable), dtype=bool, count=n)
+    stored_only = np.fromiter((v in own.get(s, ()) for v, s in zip(variable, station)), dtype=bool, count=n)
+    stored_only &= ~canonical
+    unknown = ~canonical & ~stored_only
     verdicts.reject(unknown, lambda i: f"unknown variable {str(variable[i])[:60]!r}; expected one of "
                                        f"{', '.join(VARIABLES)}, or a variable the station declares stored_only")
     number, missing, below = parse_numbers(cells)
@@ -100,7 +101,7 @@ def read_values(cells: np.ndarray, variable: np.ndarray, unit: np.ndarray, stati
                                                     "(the feed's below_detection is 'reject')")
     limit_given = np.zeros(number.size, dtype=bool)  # a limit from the config, already canonical
     if getattr(feed, "negative_means_below_detection", False):
-        lab = pd.Series(variable).isin(list(_DETECTION_LIMITED)).to_numpy()
+        lab = np.fromiter((v in _DETECTION_LIMITED for v in variable), dtype=bool, count=n)
         with np.errstate(invalid="ignore"):
             negative = lab & ~missing & ~below & (number < 0)
         limits = getattr(feed, "detection_limits", {})
@@ -135,8 +136,11 @@ def _convert(number, keep_as_is, variable, unit, station, stored_only, feed, kno
     conversions rejected. ``keep_as_is``: entries not to convert (missing, limits from the config)."""
     magnitude = float(getattr(feed, "sentinel_magnitude", 1e30))
     unit_map = getattr(feed, "units", None)
-    groups = pd.DataFrame({"s": station, "v": variable, "u": unit}).groupby(["s", "v", "u"], sort=False).indices
+    groups: dict[tuple, list[int]] = {}
+    for i, key in enumerate(zip(station, variable, unit)):
+        groups.setdefault(key, []).append(i)
     for (s, v, u), members in groups.items():
+        members = np.asarray(members, dtype=np.int64)
         members = members[verdicts.ok[members]]
         if members.size == 0:
             continue
