@@ -34,8 +34,8 @@ def same_readings(a: np.ndarray, a_censored: np.ndarray, b: np.ndarray, b_censor
 def describe(value: float, censored: bool) -> str:
     """A reading's value as a message shows it: ``3.5``, ``<0.1`` (censored), ``<?`` (unknown limit), ``missing``."""
     if censored:
-        return "<?" if np.isnan(value) else f"<{value!r}"
-    return "missing" if np.isnan(value) else repr(value)
+        return "<?" if np.isnan(value) else f"<{float(value)!r}"
+    return "missing" if np.isnan(value) else repr(float(value))
 
 
 def dedupe_batch(parsed: Parsed, rejections: list[Rejection], keys: list[str]) -> tuple[pd.DataFrame, int]:

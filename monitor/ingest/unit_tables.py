@@ -67,7 +67,11 @@ class UnitTable:
 
 
 def _table(entries: Iterable[tuple[str, float, float]], shown: Iterable[str]) -> UnitTable:
-    factors = {normalize_unit(u): (float(s), float(o)) for u, s, o in entries}
+    factors: dict[str, tuple[float, float]] = {}
+    for u, s, o in entries:
+        key = normalize_unit(u)
+        assert factors.get(key, (s, o)) == (s, o), f"{u!r} spelled twice with different factors"
+        factors[key] = (float(s), float(o))
     shown = tuple(shown)
     assert all(normalize_unit(u) in factors for u in shown), shown
     return UnitTable(shown, factors)
@@ -88,9 +92,9 @@ ION_FORMS = {"no3": N_PER_NO3, "nh4": N_PER_NH4, "po4": P_PER_PO4}
 
 def _form_spellings(unit: str, form: str) -> list[str]:
     """The ways a concentration ``unit`` with a chemical ``form`` is written: mg/L as N, mg/L-N, mg/L N, mg N/L …"""
-    mass = unit.split("/")[0]
     out = [f"{unit} as {form}", f"{unit}-{form}", f"{unit} {form}"]
-    if "/" in unit:
+    if unit.endswith("/L"):  # "mg N/L"; not from mg/m3 or ng/mL, whose mass would read per litre
+        mass = unit[:-2]
         out += [f"{mass} {form}/L", f"{mass}{form}/L", f"{mass}-{form}/L"]
     return out
 

@@ -111,16 +111,16 @@ def resolve(variable: str, unit: str, calibration: Mapping | None = None,
     if got is not None:
         return Resolved(*got)
     bare, notes = strip_annotations(unit)
-    if notes:
+    if bare != unit:
         got = _lookup(variable, bare, calibration)
         if got is not None:
-            return Resolved(*got, read_as=bare)
+            return Resolved(*got, read_as=bare if notes else None)
     cal = (calibration or {}).get(variable)
     hint = f" or {cal.unit!r} (station calibration)" if cal is not None else ""
     key = normalize_unit(bare)
     raw = "" if cal is not None or key not in RAW_SENSOR_UNITS else \
         "; a raw sensor unit needs a calibration for this station"
-    ignored = f" (read as {bare!r} without the annotation in parentheses)" if notes else ""
+    ignored = f" (read as {bare!r} without the annotation in parentheses)" if bare != unit else ""
     raise UnitError(f"unknown unit {unit!r}{ignored} for {variable}; expected {', '.join(shown_units(variable))}"
                     f"{hint}{raw}")
 
