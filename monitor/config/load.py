@@ -35,13 +35,13 @@ def parse_config(data: Mapping[str, Any], path: Path | None = None) -> Config:
     """Validate a parsed TOML document into a :class:`Config`."""
     base = path.parent.resolve() if path is not None else Path.cwd()
     top = Reader(path, data)
+    stations = tuple(read_station(st) for st in top.items("stations"))
     cfg = Config(
         path=path, service=read_service(top.sub("service"), base), schedule=read_schedule(top.sub("schedule")),
         smtp=read_smtp(top.sub("smtp")), filter=read_filter(top.sub("filter")),
         observation_errors=read_observation_errors(top.sub("observation_errors")),
         water_bodies=tuple(read_water_body(w) for w in top.items("water_bodies", required=True)),
-        stations=tuple(read_station(st) for st in top.items("stations")),
-        feeds=tuple(read_feed(f, base) for f in top.items("feeds")),
+        stations=stations, feeds=tuple(read_feed(f, base, stations) for f in top.items("feeds")),
         subscribers=tuple(read_subscriber(s) for s in top.items("subscribers")), qc=qc_table(top, "qc"))
     top.finish()
     _cross_check(cfg, path)

@@ -19,7 +19,13 @@ STATION_KINDS = ("buoy", "lab", "gauge", "weather")
 FEED_KINDS = ("csv-folder", "http-pull", "push", "mqtt")
 FEED_ROLES = ("readings", "weather-forecast")
 LAYOUTS = ("wide", "long")
-BELOW_DETECTION = ("reject", "half", "zero")
+#: ``below_detection``: a value written ``<x`` is stored as censored with its detection limit x, or
+#: rejected. "half" and "zero" (older configs, which substituted a number) are read as "censored":
+#: Bloomline never stores a value below detection as a plain number.
+BELOW_DETECTION = ("censored", "reject")
+BELOW_DETECTION_LEGACY = ("half", "zero")
+DEFAULT_SENTINELS = (-9999.0, -999.0)  # numbers that mean "no value" in many loggers' exports (common practice)
+DEFAULT_SENTINEL_MAGNITUDE = 1e30  # |value| at or above this is a fill value, not a reading
 
 
 @dataclass(frozen=True)
@@ -88,6 +94,8 @@ class StationConfig:
     qc: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
     # seasonal expected span per variable: 12 (min, max) pairs, January … December (QC climatology test)
     climatology: Mapping[str, tuple[tuple[float, float], ...]] = field(default_factory=dict)
+    # the station's own variables, stored as sent with their unit string, QC only as configured
+    stored_only: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -129,9 +137,20 @@ class FeedConfig:
     value_column: str = "value"
     unit_column: str = "unit"
     columns: Mapping[str, ColumnConfig] = field(default_factory=dict)
-    below_detection: str = "reject"
+    below_detection: str = "censored"
     # long layout: the feed's own variable names → canonical names (e.g. "NO3-N" → "nitrate")
     variable_names: Mapping[str, str] = field(default_factory=dict)
+    # long layout, per station: station id → {the feed's name → variable}; before variable_names
+    station_variable_names: Mapping[str, Mapping[str, str]] = field(default_factory=dict)
+    # unit strings as sent → the unit to read them as ("ug/L N (nitrate+nitrite)" → "ug/L N")
+    units: Mapping[str, str] = field(default_factory=dict)
+    # a negative value of a detection-limited variable (blank-corrected lab result) is below detection
+    negative_means_below_detection: bool = False
+    # detection limits [canonical unit] stored with such negative values (else the limit is unknown)
+    detection_limits: Mapping[str, float] = field(default_factory=dict)
+    # numbers that mean "no value": rejected, never stored (compared as written, before conversion)
+    sentinels: tuple[float, ...] = DEFAULT_SENTINELS
+    sentinel_magnitude: float = DEFAULT_SENTINEL_MAGNITUDE
 
 
 @dataclass(frozen=True)

@@ -13,12 +13,16 @@ is refused. Times come out as int64 ns since 1970-01-01T00:00Z.
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pandas as pd
 
 MISSING_MARKERS = frozenset({"", "na", "n/a", "nan", "null", "none"})
 _NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d{1,4})?"
-_OFFSET_RE = r"(?:[zZ]|[+-]\d\d(?::?\d\d)?)$"
+_OFFSET = re.compile(r"(?:[zZ]|[+-]\d\d(?::?\d\d)?)$")
+_NUMBER_RE = re.compile(_NUMBER)
+_BELOW_RE = re.compile(r"<\s*(" + _NUMBER + ")")
 EARLIEST = pd.Timestamp("1900-01-01")  # times outside [EARLIEST, LATEST) are refused
 LATEST = pd.Timestamp("2200-01-01")
 
@@ -31,20 +35,21 @@ def parse_numbers(cells: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray
     fast = _numbers_fast(cells)
     if fast is not None:
         return fast
-    s = pd.Series(cells, dtype=object).astype(str).str.strip()
-    lower = s.str.lower()
-    missing = lower.isin(MISSING_MARKERS).to_numpy()
-    ok = s.str.fullmatch(_NUMBER).fillna(False).to_numpy(dtype=bool)
-    values = np.full(len(s), np.nan)
-    if ok.any():
-        values[ok] = s[ok].astype(float).to_numpy()
-    below = np.zeros(len(s), dtype=bool)
-    maybe = (~ok) & (~missing) & s.str.startswith("<").to_numpy(dtype=bool)
-    if maybe.any():
-        m = s[maybe].str.fullmatch(r"<\s*" + _NUMBER).fillna(False).to_numpy(dtype=bool)
-        idx = np.nonzero(maybe)[0][m]
-        below[idx] = True
-        values[idx] = s.iloc[idx].str.lstrip("<").str.strip().astype(float).to_numpy()
+    n = len(cells)
+    values = np.full(n, np.nan)
+    missing = np.zeros(n, dtype=bool)
+    below = np.zeros(n, dtype=bool)
+    for i, cell in enumerate(cells):  # one regular expression per cell (what pandas' .str methods do, minus overhead)
+        text = str(cell).strip()
+        if text.lower() in MISSING_MARKERS:
+            missing[i] = True
+        elif _NUMBER_RE.fullmatch(text):
+            values[i] = float(text)
+        else:
+            m = _BELOW_RE.fullmatch(text)
+            if m:
+                values[i] = float(m.group(1))
+                below[i] = True
     with np.errstate(invalid="ignore"):
         finite = np.isfinite(values)
     values[~finite] = np.nan
@@ -91,46 +96,36 @@ def parse_times(cells: np.ndarray, time_format: str, timezone: str) -> tuple[np.
     codes for failures: 1 unparseable, 2 nonexistent/ambiguous local time,
     3 outside the years 1900–2199.
     """
-    s = pd.Series(cells, dtype=object).astype(str).str.strip()
-    n = len(s)
+    texts = np.array([str(c).strip() for c in cells], dtype=object)
+    n = texts.size
     out = np.zeros(n, dtype=np.int64)
     ok = np.zeros(n, dtype=bool)
     code = np.ones(n, dtype=np.uint8)
     if n == 0:
         return out, ok, code
     if time_format == "iso":
-        aware = s.str.contains(_OFFSET_RE, regex=True).to_numpy(dtype=bool)
+        aware = np.fromiter((_OFFSET.search(t) is not None for t in texts), dtype=bool, count=n)
         fmt = "ISO8601"
     else:
         aware = np.full(n, "%z" in time_format or "%Z" in time_format)
         fmt = time_format
     for is_aware in (False, True):
-        sel = aware == is_aware
-        if not sel.any():
+        idx = np.nonzero(aware == is_aware)[0]
+        if idx.size == 0:
             continue
-        part = s[sel]
         try:
-            parsed = pd.to_datetime(part, format=fmt, errors="coerce", utc=is_aware)
+            parsed = pd.DatetimeIndex(pd.to_datetime(texts[idx], format=fmt, errors="coerce", utc=is_aware))
         except (ValueError, TypeError, OverflowError):
-            parsed = pd.Series(pd.NaT, index=part.index, dtype="datetime64[ns]")
-        if not is_aware:
-            if getattr(parsed.dt, "tz", None) is not None:
-                parsed = parsed.dt.tz_convert("UTC")
-            else:
-                parsed = parsed.dt.tz_localize(timezone, ambiguous="NaT", nonexistent="NaT")
-                code_local = parsed.isna().to_numpy()
-                # times that parsed naive but failed to localize are DST problems
-                naive = pd.to_datetime(part, format=fmt, errors="coerce")
-                dst = code_local & naive.notna().to_numpy()
-                idx = np.nonzero(sel)[0]
-                code[idx[dst]] = 2
-                parsed = parsed.dt.tz_convert("UTC")
-        idx = np.nonzero(sel)[0]
-        naive_utc = parsed.dt.tz_convert("UTC").dt.tz_localize(None)
-        inside = ((naive_utc >= EARLIEST) & (naive_utc < LATEST)).to_numpy(dtype=bool)
-        code[idx[parsed.notna().to_numpy() & ~inside]] = 3
-        good = inside
-        ns = naive_utc.where(inside, EARLIEST).astype("datetime64[ns]").to_numpy().astype(np.int64)
-        out[idx[good]] = ns[good]
-        ok[idx[good]] = True
+            parsed = pd.DatetimeIndex([pd.NaT] * idx.size)
+        if parsed.tz is None:
+            # naive local times; those that parse but cannot be localized are DST problems
+            parsed_naive = ~parsed.isna()
+            parsed = parsed.tz_localize(timezone, ambiguous="NaT", nonexistent="NaT")
+            code[idx[parsed.isna() & parsed_naive]] = 2
+        naive_utc = parsed.tz_convert("UTC").tz_localize(None)
+        inside = np.asarray((naive_utc >= EARLIEST) & (naive_utc < LATEST), dtype=bool)
+        code[idx[~parsed.isna() & ~inside]] = 3
+        ns = naive_utc.where(inside, EARLIEST).as_unit("ns").asi8
+        out[idx[inside]] = ns[inside]
+        ok[idx[inside]] = True
     return out, ok, code

@@ -8,10 +8,16 @@ and reason:
   value and unit columns;
 * **wide layout**: one reading per mapped column present in the header
   (``FeedConfig.columns``: column → variable + unit);
-* empty cells (and ``NA``, ``N/A``, ``NaN``, ``null``, ``none``) are
-  *missing* readings: kept with a NaN value, QC flag 9 later;
-* a value below a detection limit (``<0.1``) is rejected, halved or set to
-  zero as the feed's ``below_detection`` says;
+* the feed's variable names map to canonical ones: per station
+  (``station_variable_names``) first, then for every station
+  (``variable_names``), then the canonical name in any case with spaces or
+  hyphens; a station's ``stored_only`` variables are accepted at it;
+* values (:mod:`monitor.ingest.values`): empty cells (and ``NA``, ``N/A``,
+  ``NaN``, ``null``, ``none``) are *missing* readings, kept with a NaN
+  value, QC flag 9 later; a value below a detection limit (``<0.1``) is
+  censored with its limit (or rejected, as the feed's ``below_detection``
+  says); sentinels are rejected; units are converted, annotations in
+  parentheses ignored and noted;
 * local times without an offset are in the feed's time zone; a local time
   that does not exist or is ambiguous (daylight saving changes) is
   rejected; a time with an offset or ``Z`` is converted to UTC
@@ -26,16 +32,16 @@ unknown station, repeated header) counts as one rejected item.
 from __future__ import annotations
 
 import datetime as dt
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import PurePath
 
 import numpy as np
 import pandas as pd
 
-from monitor.ingest.cells import parse_numbers, parse_times
+from monitor.ingest.cells import parse_times
 from monitor.ingest.tables import Rejection, Table, clean_text, csv_table, decode, json_table
-from monitor.ingest.units import UnitError, conversion
+from monitor.ingest.values import Verdicts, read_values
 from monitor.ingest.variables import VARIABLES
 from monitor.timeutil import NS_PER_DAY, ns_from_datetime
 
@@ -49,13 +55,21 @@ class Parsed:
     station: np.ndarray  # object (str)
     variable: np.ndarray  # object (str)
     time_ns: np.ndarray  # int64 ns since 1970 UTC
-    value: np.ndarray  # float, NaN = missing
+    value: np.ndarray  # float, NaN = missing; a censored reading's detection limit (NaN: unknown limit)
     line: np.ndarray  # int, the record each reading came from
     issued_ns: np.ndarray | None = None  # int64, for weather-forecast feeds
+    censored: np.ndarray | None = None  # bool: below the detection limit held in ``value``
+    unit: np.ndarray | None = None  # object: a stored-only variable's unit as sent, else None
     rejected: list[Rejection] = field(default_factory=list)
     record_lines: list[int] = field(default_factory=list)  # every data record's line number
     notes: list[str] = field(default_factory=list)
     raw: dict[int, str] = field(default_factory=dict)  # raw text of each record, by line
+
+    def __post_init__(self):
+        if self.censored is None:
+            self.censored = np.zeros(self.value.size, dtype=bool)
+        if self.unit is None:
+            self.unit = np.full(self.value.size, None, dtype=object)
 
     def __len__(self) -> int:
         return int(self.value.size)
@@ -100,21 +114,6 @@ def _empty(feed) -> Parsed:
 
 # --------------------------------------------------------------------------
 # Accepting and rejecting items (records or candidate readings)
-
-
-class _Verdicts:
-    """Which of n items are still accepted, and the first reason against each of the others."""
-
-    def __init__(self, n: int):
-        self.ok = np.ones(n, dtype=bool)
-        self.reason = np.full(n, None, dtype=object)
-
-    def reject(self, mask: np.ndarray, reason: str | Callable[[int], str]) -> None:
-        """Reject the items in ``mask`` not yet rejected; ``reason`` is a string or a function of the item."""
-        new = mask & self.ok
-        for j in np.nonzero(new)[0]:
-            self.reason[j] = reason if isinstance(reason, str) else reason(j)
-        self.ok[new] = False
 
 
 @dataclass
@@ -163,24 +162,25 @@ def _readings(table: Table, feed, config, origin, now, result: Parsed) -> Parsed
     result.raw = dict(zip(table.lines, table.raws))
     records = _Records(list(zip(*(table.rows[j] for j in keep))),
                        np.array([table.lines[j] for j in keep], dtype=np.int64), [table.raws[j] for j in keep])
-    rows = _Verdicts(len(records))
+    rows = Verdicts(len(records))
     t_ns, issued_ns = _times(records, index, feed, now, rows)
     known = {st.id: st for st in getattr(config, "stations", ())} if config is not None else {}
     station = _stations(records, index, feed, origin, known, rows)
-    cand = _candidates(records, index, feed, wide_cols)
+    cand = _candidates(records, index, feed, wide_cols, station, known)
     _report(result, records, np.nonzero(~rows.ok)[0], rows.reason[~rows.ok])
     cand = cand.subset(rows.ok[cand.record])
-    readings = _Verdicts(cand.record.size)
+    readings = Verdicts(cand.record.size)
     where = (lambda i: f"column {cand.col_names[i]!r}: ") if feed.layout == "wide" else (lambda i: "")
-    values, missing = _values(cand, feed, readings, where)
     st_c = station[cand.record]
-    _convert_units(cand, st_c, values, known, readings, where)
+    values = read_values(cand.cells, cand.variable, cand.unit, st_c, feed, known, readings, where, result.notes)
     _report(result, records, cand.record[~readings.ok], readings.reason[~readings.ok])
     sel = readings.ok
     result.station = st_c[sel]
     result.variable = cand.variable[sel]
     result.time_ns = t_ns[cand.record[sel]]
-    result.value = np.where(missing[sel], np.nan, values[sel])
+    result.value = np.where(values.missing[sel], np.nan, values.number[sel])
+    result.censored = values.censored[sel]
+    result.unit = values.unit[sel]
     result.line = records.lines[cand.record[sel]]
     if issued_ns is not None:
         result.issued_ns = issued_ns[cand.record[sel]]
@@ -252,7 +252,7 @@ def _well_formed(table: Table, result: Parsed) -> list[int]:
     return keep
 
 
-def _times(records: _Records, index: dict[str, int], feed, now, rows: _Verdicts
+def _times(records: _Records, index: dict[str, int], feed, now, rows: Verdicts
            ) -> tuple[np.ndarray, np.ndarray | None]:
     """Each record's time (and issue time) [ns UTC]; records with a bad or future time rejected."""
     tcell = records.column(index["time"])
@@ -279,7 +279,7 @@ def _time_reason(cell, code: int, timezone: str, fmt_name: str) -> str:
     return f"time {shown} does not match the time format {fmt_name}"
 
 
-def _stations(records: _Records, index: dict[str, int], feed, origin, known: Mapping, rows: _Verdicts
+def _stations(records: _Records, index: dict[str, int], feed, origin, known: Mapping, rows: Verdicts
               ) -> np.ndarray:
     """Each record's station: its column, the feed's station or the origin's folder; unknown ones rejected."""
     n = len(records)
@@ -297,12 +297,15 @@ def _stations(records: _Records, index: dict[str, int], feed, origin, known: Map
     return station
 
 
-def _candidates(records: _Records, index: dict[str, int], feed, wide_cols) -> _Candidates:
+def _candidates(records: _Records, index: dict[str, int], feed, wide_cols, station: np.ndarray,
+                known: Mapping) -> _Candidates:
     """Candidate readings: one per record (long layout) or per record and mapped column (wide)."""
     n = len(records)
     if feed.layout == "long":
+        names = _VariableNames(feed, known)
         return _Candidates(
-            np.arange(n), _canonical_variables(records.cols[index["variable"]], getattr(feed, "variable_names", {})),
+            np.arange(n), np.array([names.resolve(s, v) for s, v in zip(station, records.cols[index["variable"]])],
+                                   dtype=object),
             np.array([u.strip() for u in records.cols[index["unit"]]], dtype=object),
             records.column(index["value"]), np.full(n, feed.value_column, dtype=object))
     k = len(wide_cols)
@@ -313,62 +316,28 @@ def _candidates(records: _Records, index: dict[str, int], feed, wide_cols) -> _C
         np.repeat(np.array([w[1] for w in wide_cols], dtype=object), n))
 
 
-def _canonical_variables(names, aliases: Mapping[str, str]) -> np.ndarray:
-    """The feed's variable names → canonical names: the feed's ``variable_names`` first, then the
-    canonical name itself in any case, with spaces or hyphens for underscores; else unchanged."""
-    lookup = {k.strip().lower(): v for k, v in aliases.items()}
-    cache: dict[str, str] = {}
-    out = []
-    for name in names:
-        got = cache.get(name)
+class _VariableNames:
+    """The feed's variable names → variables, per station: the station's own names in the feed
+    (``station_variable_names``), the feed's names (``variable_names``), then the canonical name or the
+    station's stored-only name in any case, with spaces or hyphens for underscores; else unchanged."""
+
+    def __init__(self, feed, known: Mapping):
+        self.common = {k.strip().lower(): v for k, v in getattr(feed, "variable_names", {}).items()}
+        self.per_station = {s: {k.strip().lower(): v for k, v in m.items()}
+                            for s, m in getattr(feed, "station_variable_names", {}).items()}
+        self.own = {sid: {x.lower(): x for x in getattr(st, "stored_only", ())} for sid, st in known.items()}
+        self.cache: dict[tuple[str, str], str] = {}
+
+    def resolve(self, station: str, name: str) -> str:
+        got = self.cache.get((station, name))
         if got is None:
             key = name.strip().lower()
-            if key in lookup:
-                got = lookup[key]
-            else:
+            got = self.per_station.get(station, {}).get(key) or self.common.get(key)
+            if got is None:
                 norm = "_".join(key.replace("-", " ").split())
-                got = norm if norm in VARIABLES else name.strip()
-            cache[name] = got
-        out.append(got)
-    return np.array(out, dtype=object)
-
-
-def _values(cand: _Candidates, feed, readings: _Verdicts, where: Callable[[int], str]
-            ) -> tuple[np.ndarray, np.ndarray]:
-    """(values in the feed's units, missing mask); unknown variables, malformed numbers and (as the feed
-    says) values below the detection limit rejected, or the latter halved or zeroed."""
-    cells, variable = cand.cells, cand.variable
-    values, missing, below = parse_numbers(cells)
-    readings.reject(~pd.Series(variable).isin(list(VARIABLES)).to_numpy(),
-                    lambda i: f"unknown variable {str(variable[i])[:60]!r}; expected one of {', '.join(VARIABLES)}")
-    bad_number = ~(missing | below | np.isfinite(values))
-    readings.reject(bad_number, lambda i: where(i) + f"value {str(cells[i])[:60]!r} is not a finite decimal number")
-    if below.any():
-        if feed.below_detection == "reject":
-            readings.reject(below, lambda i: where(i) + f"value {str(cells[i])[:60]!r} is below the detection limit "
-                                                        "(the feed's below_detection is 'reject')")
-        else:
-            values[below] = values[below] * (0.5 if feed.below_detection == "half" else 0.0)
-    return values, missing
-
-
-def _convert_units(cand: _Candidates, station: np.ndarray, values: np.ndarray, known: Mapping,
-                   readings: _Verdicts, where: Callable[[int], str]) -> None:
-    """Values to canonical units in place, per (station, variable, unit); unknown units rejected."""
-    groups = pd.DataFrame({"s": station, "v": cand.variable, "u": cand.unit}).groupby(
-        ["s", "v", "u"], sort=False).indices
-    for (s, v, u), members in groups.items():
-        members = members[readings.ok[members]]
-        if members.size == 0:
-            continue
-        cal = known[s].calibration if s in known else None
-        try:
-            scale, offset = conversion(v, u, cal)
-        except UnitError as exc:
-            msg = str(exc)
-            readings.reject(np.isin(np.arange(cand.record.size), members), lambda i, msg=msg: where(i) + msg)
-            continue
-        values[members] = values[members] * scale + offset
+                got = norm if norm in VARIABLES else self.own.get(station, {}).get(norm, name.strip())
+            self.cache[(station, name)] = got
+        return got
 
 
 def _report(result: Parsed, records: _Records, record_idx: np.ndarray, reasons: np.ndarray) -> None:

@@ -86,6 +86,25 @@ DEFAULTS: dict[str, dict[str, float | None]] = {
     "srp": _d(sensor_min=0.0, sensor_max=10_000.0, user_min=0.0, user_max=1000.0),
     "total_phosphorus": _d(sensor_min=0.0, sensor_max=20_000.0, user_min=0.0, user_max=3000.0),
     "microcystin": _d(sensor_min=0.0, sensor_max=50_000.0, user_min=0.0, user_max=2000.0),
+    "ammonium": _d(sensor_min=0.0, sensor_max=100_000.0, user_min=0.0, user_max=20_000.0),
+    "total_nitrogen": _d(sensor_min=0.0, sensor_max=200_000.0, user_min=0.0, user_max=30_000.0),
+    # Sonde variables (DO, saturation, pH, turbidity, conductance): sensor spans are typical optical
+    # DO, glass pH, nephelometer and conductivity cell ranges (from memory); user spans, spike,
+    # rate and flat-line settings common practice for 15-minute lake data. Turbidity and
+    # conductance step legitimately (storm inflow, sensor resolution): gross range and flat line
+    # (turbidity) only.
+    "dissolved_oxygen": _d(sensor_min=0.0, sensor_max=50.0, user_min=0.0, user_max=25.0,
+                           spike_suspect=2.0, spike_fail=5.0, rate_of_change_per_h=3.0,
+                           flat_line_tolerance=1e-3, flat_line_suspect_h=6.0, flat_line_fail_h=12.0),
+    "oxygen_saturation": _d(sensor_min=0.0, sensor_max=500.0, user_min=0.0, user_max=250.0,
+                            spike_suspect=20.0, spike_fail=50.0, rate_of_change_per_h=30.0,
+                            flat_line_tolerance=1e-3, flat_line_suspect_h=6.0, flat_line_fail_h=12.0),
+    "ph": _d(sensor_min=0.0, sensor_max=14.0, user_min=4.0, user_max=11.0,
+             spike_suspect=0.5, spike_fail=1.0, rate_of_change_per_h=1.0,
+             flat_line_tolerance=1e-4, flat_line_suspect_h=6.0, flat_line_fail_h=12.0),
+    "turbidity": _d(sensor_min=0.0, sensor_max=4000.0, user_min=0.0, user_max=1000.0,
+                    flat_line_tolerance=1e-4, flat_line_suspect_h=12.0, flat_line_fail_h=24.0),
+    "specific_conductance": _d(sensor_min=0.0, sensor_max=200_000.0, user_min=1.0, user_max=10_000.0),
     "secchi_depth": _d(sensor_min=0.0, sensor_max=50.0, user_min=0.0, user_max=20.0),
     "discharge": _d(sensor_min=0.0, sensor_max=100_000.0, user_min=0.0, user_max=5000.0),
     "air_temperature": _d(sensor_min=-60.0, sensor_max=60.0, user_min=-40.0, user_max=45.0,

@@ -13,6 +13,20 @@ Against the store a reading is identified by (station, variable, time,
 source): the same value again is a duplicate; another value is rejected
 with the stored one in the reason, except that a stored *missing* reading
 (QC flag 9) is filled in by a later value.
+
+A censored reading (below its detection limit) is stored with value NULL,
+``censored = 1``, its limit in ``detection_limit`` and QC flag 9 (no number
+to pass or fail): it is no neighbour in the spike, rate-of-change and
+flat-line tests of the readings around it, and its ``qc_tests`` hold the
+gross range test of its limit (other digits 9). It is the same reading
+again only when censored again with the same limit.
+
+Concurrent batches: on PostgreSQL a batch takes a transaction-scoped
+advisory lock per station it writes (and per fluorometer its lab
+chlorophyll-a re-qualifies), in one order, before reading any stored
+neighbour, so two batches of one station are qualified one after the
+other and each sees the other's readings (SQLite serialises writers
+itself).
 """
 
 from __future__ import annotations
@@ -26,10 +40,11 @@ import pandas as pd
 from sqlalchemy.engine import Connection
 
 from monitor.ingest import qc
-from monitor.ingest.dedupe import dedupe_batch, same_values
+from monitor.ingest.dedupe import dedupe_batch, describe, same_readings
 from monitor.ingest.parsing import Parsed
 from monitor.ingest.qc_drift import DRIFT_BASELINE_DAYS, DRIFT_HOLD_DAYS, DRIFT_MATCH_WINDOW_H
 from monitor.ingest.qc_flags import FAIL, SUSPECT
+from monitor.ingest.station_locks import fluorometer_stations, lab_stations, lock_stations
 from monitor.ingest.tables import Rejection
 from monitor.store.db import param_marker
 from monitor.timeutil import db_times, ns_from_days, ns_from_db, ns_from_hours
@@ -43,17 +58,23 @@ class _Stored:
 
     id: np.ndarray
     t: np.ndarray
-    value: np.ndarray
+    value: np.ndarray  # plain values; NaN for missing and censored readings
     qc_flag: np.ndarray
     qc_tests: np.ndarray
     source: np.ndarray
+    censored: np.ndarray  # bool
+    limit: np.ndarray  # a censored reading's detection limit (NaN: unknown, or not censored)
 
     def __len__(self) -> int:
         return int(self.t.size)
 
     def subset(self, mask: np.ndarray) -> _Stored:
         return _Stored(self.id[mask], self.t[mask], self.value[mask], self.qc_flag[mask], self.qc_tests[mask],
-                       self.source[mask])
+                       self.source[mask], self.censored[mask], self.limit[mask])
+
+    def number(self) -> np.ndarray:
+        """The value, or a censored reading's limit: what a new reading at the same time is compared with."""
+        return np.where(self.censored, self.limit, self.value)
 
 
 @dataclass
@@ -64,10 +85,12 @@ class _SeriesResult:
     variable: str
     span: tuple[int, int]  # [ns] first and last time of the batch's readings of the series
     t: np.ndarray  # new readings to insert [ns]
-    value: np.ndarray
+    value: np.ndarray  # the value, or a censored reading's detection limit
+    censored: np.ndarray
+    unit: np.ndarray
     flag: np.ndarray
     tests: np.ndarray
-    fills: list[tuple]  # (value, flag, tests, batch, id) of stored missing readings filled in
+    fills: list[tuple]  # (value, censored, limit, unit, flag, tests, batch, id) of stored missing readings filled in
     accepted: int
     flagged: int
     duplicate: int
@@ -80,6 +103,8 @@ def store_readings(conn: Connection, config, parsed: Parsed, source: str, batch_
     source: the feed's source name, part of each reading's identity;
     rejections: the batch's rejections so far, extended in place.
     """
+    if conn.dialect.name == "postgresql":
+        lock_stations(conn, config, parsed.station)
     frame, duplicate = dedupe_batch(parsed, rejections, ["station", "variable", "t"])
     results = [_store_series(conn, config, parsed, source, batch_id, rejections, g) for g in _series_frames(frame)]
     accepted = sum(r.accepted for r in results)
@@ -88,8 +113,8 @@ def store_readings(conn: Connection, config, parsed: Parsed, source: str, batch_
     fills = [f for r in results for f in r.fills]
     if fills:
         ph = param_marker(conn)
-        conn.exec_driver_sql(f"UPDATE readings SET value = {ph}, qc_flag = {ph}, qc_tests = {ph}, batch_id = {ph} "
-                             f"WHERE id = {ph}", fills)
+        conn.exec_driver_sql(f"UPDATE readings SET value = {ph}, censored = {ph}, detection_limit = {ph}, "
+                             f"unit = {ph}, qc_flag = {ph}, qc_tests = {ph}, batch_id = {ph} WHERE id = {ph}", fills)
     if results:
         inserted, offered = _insert_new(conn, results, source, batch_id)
         if inserted < offered:  # a concurrent batch stored some of them first
@@ -118,12 +143,19 @@ def _store_series(conn: Connection, config, parsed: Parsed, source: str, batch_i
     margin = ns_from_hours(qc.context_hours(settings))
     t_new = g["t"].to_numpy()
     v_new = g["value"].to_numpy()
+    c_new = g["censored"].to_numpy(dtype=bool)
+    u_new = g["unit"].to_numpy(dtype=object)
     t_min, t_max = int(t_new.min()), int(t_new.max())
     stored = _stored(conn, station, variable, source, t_min - 2 * margin, t_max + 2 * margin)
-    keep, stored_values, fill_rows, duplicate = _merge_stored(stored, g, parsed, rejections)
-    flag_all, digits_all = _qualify_merged(conn, config, station, variable, settings, stored.t, stored_values,
-                                           t_new[keep], v_new[keep], t_min, t_max, source)
+    keep, merged, fill_from, duplicate = _merge_stored(stored, g, parsed, rejections)
+    fill_rows = fill_from >= 0
     n_stored = len(stored)
+    censored_all = np.concatenate([merged.censored, c_new[keep]])
+    limits_all = np.concatenate([merged.limit, np.where(c_new, v_new, np.nan)[keep]])
+    plain_new = np.where(c_new, np.nan, v_new)[keep]
+    flag_all, digits_all = _qualify_merged(conn, config, station, variable, settings, stored.t, merged.value,
+                                           t_new[keep], plain_new, t_min, t_max, source)
+    _censored_digits(digits_all, censored_all, limits_all, settings)
     in_range = (stored.t >= t_min - margin) & (stored.t <= t_max + margin) & ~fill_rows
     _update_neighbours(conn, stored, flag_all[:n_stored], digits_all[:n_stored], in_range)
     fills = []
@@ -131,53 +163,76 @@ def _store_series(conn: Connection, config, parsed: Parsed, source: str, batch_i
     if fill_rows.any():
         tests = qc.digits_to_strings(digits_all[:n_stored])
         for j in np.nonzero(fill_rows)[0]:
-            fills.append((float(stored_values[j]), int(flag_all[j]), str(tests[j]), batch_id, int(stored.id[j])))
+            i = fill_from[j]
+            fills.append((_db_float(merged.value[j]), int(c_new[i]), _db_float(merged.limit[j]), u_new[i],
+                          int(flag_all[j]), str(tests[j]), batch_id, int(stored.id[j])))
             accepted += 1
             flagged += int(flag_all[j] in (SUSPECT, FAIL))
     f_new = flag_all[n_stored:]
     accepted += int(f_new.size)
     flagged += int(np.isin(f_new, (SUSPECT, FAIL)).sum())
-    return _SeriesResult(station, variable, (t_min, t_max), t_new[keep], v_new[keep], f_new,
-                         qc.digits_to_strings(digits_all[n_stored:]), fills, accepted, flagged, duplicate)
+    return _SeriesResult(station, variable, (t_min, t_max), t_new[keep], v_new[keep], c_new[keep], u_new[keep],
+                         f_new, qc.digits_to_strings(digits_all[n_stored:]), fills, accepted, flagged, duplicate)
+
+
+def _db_float(x: float) -> float | None:
+    """A value for a bound parameter: None for NaN (every driver stores NULL)."""
+    return None if x != x else float(x)
+
+
+def _censored_digits(digits: np.ndarray, censored: np.ndarray, limits: np.ndarray, settings) -> None:
+    """Censored readings (flag 9 from QC, having no value): the gross range test of their detection limit in
+    the first digit, in place."""
+    sel = censored & np.isfinite(limits)
+    if sel.any():
+        digits[sel, 0] = qc.gross_range(limits[sel], settings.get("sensor_min"), settings.get("sensor_max"),
+                                        settings.get("user_min"), settings.get("user_max"))
 
 
 def _merge_stored(stored: _Stored, g: pd.DataFrame, parsed: Parsed,
-                  rejections: list[Rejection]) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+                  rejections: list[Rejection]) -> tuple[np.ndarray, _Stored, np.ndarray, int]:
     """Match the batch's readings of a series with stored ones at the same time.
 
-    Returns (keep: the batch readings that are new, the stored values with
-    missing ones filled in, fill_rows: the stored readings filled in, the
-    number of duplicates); conflicts are appended to ``rejections``.
+    Returns (keep: the batch readings that are new; the stored readings with
+    missing ones filled in; fill_from: for each stored reading, the batch
+    reading that fills it in, or -1; the number of duplicates); conflicts
+    are appended to ``rejections``.
     """
     station, variable = g["station"].iat[0], g["variable"].iat[0]
     t_new = g["t"].to_numpy()
     v_new = g["value"].to_numpy()
+    c_new = g["censored"].to_numpy(dtype=bool)
     line_new = g["line"].to_numpy()
     keep = np.ones(t_new.size, dtype=bool)
-    stored_values = stored.value.copy()
-    fill_rows = np.zeros(len(stored), dtype=bool)
+    merged = stored.subset(np.ones(len(stored), dtype=bool))
+    fill_from = np.full(len(stored), -1, dtype=np.int64)
     duplicate = 0
     if not len(stored):
-        return keep, stored_values, fill_rows, duplicate
+        return keep, merged, fill_from, duplicate
+    number = stored.number()
     pos = np.searchsorted(stored.t, t_new)
     pos_c = np.clip(pos, 0, len(stored) - 1)
     hit = stored.t[pos_c] == t_new
     for i in np.nonzero(hit)[0]:
         keep[i] = False
         j = pos_c[i]
-        old = stored_values[j]
-        if same_values(np.array([v_new[i]]), np.array([old]))[0]:
+        old_missing = not merged.censored[j] and np.isnan(merged.value[j])
+        if same_readings(np.array([v_new[i]]), np.array([c_new[i]]), np.array([number[j]]),
+                         np.array([merged.censored[j]]))[0]:
             duplicate += 1
-        elif np.isnan(old):
-            stored_values[j] = v_new[i]
-            fill_rows[j] = True
-        elif np.isnan(v_new[i]):
+        elif old_missing:
+            merged.censored[j] = c_new[i]
+            merged.value[j] = np.nan if c_new[i] else v_new[i]
+            merged.limit[j] = v_new[i] if c_new[i] else np.nan
+            fill_from[j] = i
+        elif not c_new[i] and np.isnan(v_new[i]):
             duplicate += 1  # a missing report of a reading already stored adds nothing
         else:
             rejections.append(Rejection(int(line_new[i]), parsed.raw_text(line_new[i]),
                                         f"{variable} at {station} conflicts with the stored reading "
-                                        f"(stored {old!r}, received {v_new[i]!r})"))
-    return keep, stored_values, fill_rows, duplicate
+                                        f"(stored {describe(number[j], merged.censored[j])}, "
+                                        f"received {describe(v_new[i], c_new[i])})"))
+    return keep, merged, fill_from, duplicate
 
 
 def _qualify_merged(conn, config, station, variable, settings, stored_t, stored_v, new_t, new_v, t_min, t_max,
@@ -199,22 +254,30 @@ def _insert_new(conn: Connection, results: list[_SeriesResult], source: str, bat
     """Insert the new readings of every series; return (inserted, offered)."""
     d = conn.dialect.name
     t = np.concatenate([r.t for r in results])
-    values = np.concatenate([r.value for r in results])
+    numbers = np.concatenate([r.value for r in results])
+    censored = np.concatenate([r.censored for r in results])
+    values = np.where(censored, np.nan, numbers)
+    if np.isinf(numbers).any():
+        raise ValueError("a reading's value or detection limit is infinite: refusing to store the batch")
     # SQLite stores a bound NaN as NULL; other drivers get None for a missing value
     value_list = values.tolist() if d == "sqlite" else [None if v != v else v for v in values.tolist()]
+    limits = [_db_float(x) if c else None for x, c in zip(numbers.tolist(), censored.tolist())]
     stations = chain.from_iterable(repeat(r.station, r.t.size) for r in results)
     variables = chain.from_iterable(repeat(r.variable, r.t.size) for r in results)
-    rows = list(zip(stations, variables, db_times(t, d), value_list,
+    rows = list(zip(stations, variables, db_times(t, d), value_list, censored.astype(int).tolist(), limits,
+                    np.concatenate([r.unit for r in results]).tolist(),
                     np.concatenate([r.flag for r in results]).astype(int).tolist(),
                     np.concatenate([r.tests for r in results]).tolist(), repeat(source), repeat(batch_id)))
     return _insert_readings(conn, rows), len(rows)
 
 
 def _insert_readings(conn: Connection, rows: list[tuple]) -> int:
-    """Insert (station, variable, time, value, flag, tests, source, batch) rows; return how many were new."""
+    """Insert (station, variable, time, value, censored, detection limit, unit, flag, tests, source, batch)
+    rows; return how many were new."""
     ph = param_marker(conn)
-    sql = (f"INSERT INTO readings (station_id, variable, time_utc, value, qc_flag, qc_tests, source, batch_id) "
-           f"VALUES ({ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}) "
+    sql = (f"INSERT INTO readings (station_id, variable, time_utc, value, censored, detection_limit, unit, "
+           f"qc_flag, qc_tests, source, batch_id) "
+           f"VALUES ({ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}) "
            f"ON CONFLICT (station_id, variable, time_utc, source) DO NOTHING")
     total = 0
     for k in range(0, len(rows), INSERT_CHUNK):
@@ -233,7 +296,7 @@ def _stored(conn: Connection, station: str, variable: str, source: str | None, t
     d = conn.dialect.name
     ph = param_marker(conn)
     lo, hi = db_times(np.array([t0, t1]), d)
-    sql = (f"SELECT id, time_utc, value, qc_flag, qc_tests, source FROM readings "
+    sql = (f"SELECT id, time_utc, value, qc_flag, qc_tests, source, censored, detection_limit FROM readings "
            f"WHERE station_id = {ph} AND variable = {ph} AND time_utc >= {ph} AND time_utc <= {ph}")
     params = [station, variable, lo, hi]
     if source is not None:
@@ -242,12 +305,16 @@ def _stored(conn: Connection, station: str, variable: str, source: str | None, t
     rows = conn.exec_driver_sql(sql + " ORDER BY time_utc", tuple(params)).fetchall()
     if not rows:
         e = np.array([], dtype=np.int64)
-        return _Stored(e, e, np.array([], dtype=float), e, np.array([], dtype=object), np.array([], dtype=object))
-    ids, times, values, flags, tests, sources = zip(*rows)
+        f = np.array([], dtype=float)
+        return _Stored(e, e, f, e, np.array([], dtype=object), np.array([], dtype=object),
+                       np.array([], dtype=bool), f)
+    ids, times, values, flags, tests, sources, censored, limits = zip(*rows)
+    cens = np.asarray(censored, dtype=np.int64) != 0
     return _Stored(np.asarray(ids, dtype=np.int64), ns_from_db(times, d),
                    np.array([np.nan if v is None else v for v in values], dtype=float),
                    np.asarray(flags, dtype=np.int64), np.asarray(tests, dtype=object),
-                   np.asarray(sources, dtype=object))
+                   np.asarray(sources, dtype=object), cens,
+                   np.array([np.nan if x is None else x for x in limits], dtype=float))
 
 
 def _update_neighbours(conn: Connection, stored: _Stored, flag, digits, in_range: np.ndarray) -> None:
@@ -270,25 +337,10 @@ def _update_neighbours(conn: Connection, stored: _Stored, flag, digits, in_range
 # Fluorometers and the lab chlorophyll-a that checks them
 
 
-def _lab_stations(config, station_id: str) -> list[str]:
-    """Stations whose extracted chlorophyll-a checks this station's fluorometer: itself and lab stations in its basin."""
-    out = [station_id]
-    me = next((s for s in getattr(config, "stations", ()) if s.id == station_id), None)
-    if me is not None and me.basin is not None:
-        out += [s.id for s in config.stations if s.id != station_id and s.kind == "lab"
-                and s.water_body == me.water_body and s.basin == me.basin]
-    return out
-
-
-def _fluorometer_stations(config, lab_station_id: str) -> list[str]:
-    """Stations whose fluorometers a lab station's chlorophyll-a checks (the inverse of :func:`_lab_stations`)."""
-    return [s.id for s in getattr(config, "stations", ()) if lab_station_id in _lab_stations(config, s.id)]
-
-
 def _lab_series(conn: Connection, config, station_id: str, t0: int, t1: int) -> tuple[np.ndarray, np.ndarray]:
     """Lab chlorophyll-a [ns, µg/L] bearing on a station's fluorometer in [t0, t1], QC flag 1-3, in time order."""
     times, values = [], []
-    for lab in _lab_stations(config, station_id):
+    for lab in lab_stations(config, station_id):
         got = _stored(conn, lab, "chlorophyll_a", None, t0, t1)
         got = got.subset(np.isin(got.qc_flag, [1, 2, 3]) & np.isfinite(got.value))
         times.append(got.t)
@@ -328,7 +380,7 @@ def _requalify_fluorometers(conn: Connection, config, lab_station: str, t0: int,
     """New lab chlorophyll-a in [t0, t1] [ns]: re-run QC of the fluorometers it checks, over the readings it affects."""
     window = ns_from_hours(DRIFT_MATCH_WINDOW_H)
     hold = ns_from_days(DRIFT_HOLD_DAYS)
-    for station in _fluorometer_stations(config, lab_station):
+    for station in fluorometer_stations(config, lab_station):
         settings = qc.settings_for(config, station, "chlorophyll_fluorescence")
         if settings.get("drift_suspect_fraction") is None:
             continue
@@ -343,4 +395,5 @@ def _requalify_fluorometers(conn: Connection, config, lab_station: str, t0: int,
             g = stored.subset(stored.source == source)  # in time order, as queried
             flag, digits = _qualify(conn, config, station, "chlorophyll_fluorescence", settings, g.t, g.value,
                                     lo, hi, source)
+            _censored_digits(digits, g.censored, g.limit, settings)
             _update_neighbours(conn, g, flag, digits, (g.t >= lo) & (g.t <= hi))

@@ -1,9 +1,9 @@
 """Storing a weather-forecast batch in ``driver_forecasts``.
 
 A forecast value is identified by (station, variable, issue time, valid
-time, source). Missing values and values outside the sensor range (the
-QARTOD gross range test's fail span, :func:`monitor.ingest.qc.gross_range`)
-are rejected; a value already stored for its key is a duplicate. Forecasts
+time, source). Missing values, censored values (below a detection limit)
+and values outside the sensor range (the QARTOD gross range test's fail
+span, :func:`monitor.ingest.qc.gross_range`) are rejected; a value already stored for its key is a duplicate. Forecasts
 carry no QC flags.
 """
 
@@ -35,7 +35,12 @@ def store_forecasts(conn: Connection, config, parsed: Parsed, source: str, batch
         return 0, 0, duplicate
     keep = np.ones(len(frame), dtype=bool)
     values = frame["value"].to_numpy()
-    for i in np.nonzero(np.isnan(values))[0]:
+    censored = frame["censored"].to_numpy(dtype=bool)
+    for i in np.nonzero(censored)[0]:
+        keep[i] = False
+        rejections.append(Rejection(int(frame.at[i, "line"]), parsed.raw_text(frame.at[i, "line"]),
+                                    f"a forecast {frame.at[i, 'variable']} cannot be below a detection limit"))
+    for i in np.nonzero(np.isnan(values) & ~censored)[0]:
         keep[i] = False
         rejections.append(Rejection(int(frame.at[i, "line"]), parsed.raw_text(frame.at[i, "line"]),
                                     f"missing {frame.at[i, 'variable']} value"))

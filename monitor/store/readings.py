@@ -12,7 +12,7 @@ from collections.abc import Iterable
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import String, and_, case, func, select, type_coerce
+from sqlalchemy import String, and_, case, func, or_, select, type_coerce
 from sqlalchemy.engine import Engine
 
 from monitor.store.schema import driver_forecasts, ingest_batches, readings, rejected_rows
@@ -21,16 +21,24 @@ from monitor.timeutil import aware_utc, utc_from_db, utc_series_from_db
 
 def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
                    variables: Iterable[str] | None = None, start=None, end=None,
-                   max_flag: int = 1) -> pd.DataFrame:
+                   max_flag: int = 1, include_censored: bool = False) -> pd.DataFrame:
     """Stored readings with ``qc_flag <= max_flag`` (1: passed only; 3: with suspect; 9: everything).
 
     start and end [aware datetimes] bound ``time_utc`` inclusively. Columns
     station_id, variable, time_utc (tz-aware UTC), value, qc_flag, source;
     sorted by time (then station, variable, source).
+
+    Censored readings (below a detection limit: no value, QC flag 9) are left
+    out, so ``value`` is always a plain number or NaN for a missing reading.
+    With ``include_censored`` they are in (whatever ``max_flag``), with NaN
+    as their value, and two more columns say what they mean: ``censored``
+    (bool) and ``detection_limit`` (the limit in the canonical unit, NaN
+    when unknown or not censored) — "below this" information.
     """
     start = aware_utc(start, "start")
     end = aware_utc(end, "end")
-    cond = [readings.c.qc_flag <= int(max_flag)]
+    flag_ok = readings.c.qc_flag <= int(max_flag)
+    cond = [or_(flag_ok, readings.c.censored != 0) if include_censored else and_(flag_ok, readings.c.censored == 0)]
     if stations is not None:
         cond.append(readings.c.station_id.in_(list(stations)))
     if variables is not None:
@@ -39,9 +47,10 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
         cond.append(readings.c.time_utc >= start)
     if end is not None:
         cond.append(readings.c.time_utc <= end)
+    extra = [readings.c.censored, readings.c.detection_limit] if include_censored else []
     q = (select(readings.c.station_id, readings.c.variable, type_coerce(readings.c.time_utc, String),
                 readings.c.value,
-                readings.c.qc_flag, readings.c.source)
+                readings.c.qc_flag, readings.c.source, *extra)
          .where(and_(*cond))
          .order_by(readings.c.time_utc, readings.c.station_id, readings.c.variable, readings.c.source))
     with engine.connect() as conn:
@@ -49,14 +58,27 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
         # read as text in SQLite and converted below, vectorised), and skipping it is 2× faster
         rows = conn.execute(q).cursor.fetchall()
     if not rows:
-        return pd.DataFrame({"station_id": pd.Series([], dtype=object), "variable": pd.Series([], dtype=object),
-                             "time_utc": pd.Series([], dtype="datetime64[ns, UTC]"),
-                             "value": pd.Series([], dtype=float), "qc_flag": pd.Series([], dtype=np.int64),
-                             "source": pd.Series([], dtype=object)})
-    st, var, t, v, f, src = zip(*rows)
-    return pd.DataFrame({"station_id": list(st), "variable": list(var), "time_utc": utc_series_from_db(t),
-                         "value": np.array([np.nan if x is None else x for x in v], dtype=float),
-                         "qc_flag": np.asarray(f, dtype=np.int64), "source": list(src)})
+        frame = pd.DataFrame({"station_id": pd.Series([], dtype=object), "variable": pd.Series([], dtype=object),
+                              "time_utc": pd.Series([], dtype="datetime64[ns, UTC]"),
+                              "value": pd.Series([], dtype=float), "qc_flag": pd.Series([], dtype=np.int64),
+                              "source": pd.Series([], dtype=object)})
+        if include_censored:
+            frame["censored"] = pd.Series([], dtype=bool)
+            frame["detection_limit"] = pd.Series([], dtype=float)
+        return frame
+    cols = list(zip(*rows))
+    st, var, t, v, f, src = cols[:6]
+    frame = pd.DataFrame({"station_id": list(st), "variable": list(var), "time_utc": utc_series_from_db(t),
+                          "value": _floats(v), "qc_flag": np.asarray(f, dtype=np.int64), "source": list(src)})
+    if include_censored:
+        frame["censored"] = np.asarray(cols[6], dtype=np.int64) != 0
+        frame["detection_limit"] = _floats(cols[7])
+    return frame
+
+
+def _floats(column) -> np.ndarray:
+    """Database floats (None = NULL) → a float array with NaN for NULL."""
+    return np.array([np.nan if x is None else x for x in column], dtype=float)
 
 
 def latest_driver_forecast(engine: Engine, station_id: str, *, issued_at_or_before) -> pd.DataFrame:

@@ -21,6 +21,7 @@ from sqlalchemy import (
     Table,
     Text,
     UniqueConstraint,
+    text,
 )
 from sqlalchemy.types import TypeDecorator
 
@@ -116,11 +117,17 @@ readings = Table(
     Column("station_id", String(64), nullable=False),
     Column("variable", String(64), nullable=False),
     Column("time_utc", UTCDateTime, nullable=False),
-    Column("value", Float, nullable=True),  # NULL = missing (reported empty), QC flag 9
+    # finite, in the variable's canonical unit; NULL = no number: missing (reported empty) or censored
+    Column("value", Float, nullable=True),
     Column("qc_flag", SmallInteger, nullable=False),  # QARTOD: 1 pass, 2 not evaluated, 3 suspect, 4 fail, 9 missing
     Column("qc_tests", String(64), nullable=False, default=""),  # one digit per QC test, see monitor.ingest.qc
     Column("source", String(100), nullable=False),
     Column("batch_id", Integer, ForeignKey("ingest_batches.id"), nullable=False),
+    # 1 = below the detection limit: value NULL, QC flag 9 (no number), the limit in detection_limit
+    # (canonical unit; NULL when the feed did not say it); 0 = not censored
+    Column("censored", SmallInteger, nullable=False, default=0, server_default=text("0")),
+    Column("detection_limit", Float, nullable=True),
+    Column("unit", String(64), nullable=True),  # a station's stored-only variable: its unit as sent; else NULL
     # The unique index also serves every (station, variable, time range) query: no second index.
     UniqueConstraint("station_id", "variable", "time_utc", "source"),
 )

@@ -61,14 +61,17 @@ def test_the_exports_ingest_through_the_feed_with_no_row_rejected(tmp_path):
         assert all(r.status == "ok" and r.rejected == 0 for r in results), [r.message for r in results]
         assert rejected_rows_frame(engine).empty
         exported = pd.concat([pd.read_csv(DATA / f"brackenfold_{y}.csv", dtype=str) for y in (2025, 2026)], ignore_index=True)
-        stored = readings_frame(engine, max_flag=9)
+        stored = readings_frame(engine, max_flag=9, include_censored=True)
         assert len(stored) == len(exported) == sum(r.accepted for r in results)
         # every value is stored as written (the export's units are Bloomline's: µg/L, µg N/L, µg P/L, °C),
-        # and "<DL" as half the detection limit (the feed's below_detection = "half")
+        # and "<DL" as censored with its detection limit, never as a number
+        below = exported["value"].str.startswith("<")
         assert ((exported["variable"] == "srp") & (exported["value"] == "<2")).sum() > 0
-        as_written = exported["value"].map(lambda v: float(v[1:]) / 2 if v.startswith("<") else float(v))
+        assert stored["censored"].sum() == below.sum() and stored.loc[stored["censored"], "value"].isna().all()
+        as_written = exported["value"].map(lambda v: float(v[1:]) if v.startswith("<") else float(v))
+        number = stored["detection_limit"].where(stored["censored"], stored["value"])
         for variable, rows in exported.groupby("variable"):
-            np.testing.assert_allclose(np.sort(stored[stored["variable"] == variable]["value"].to_numpy()),
+            np.testing.assert_allclose(np.sort(number[stored["variable"] == variable].to_numpy()),
                                        np.sort(as_written[rows.index].to_numpy()), err_msg=variable)
     finally:
         engine.dispose()

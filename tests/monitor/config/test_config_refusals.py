@@ -32,6 +32,11 @@ def with_every_table() -> dict:
     station["qc"] = {"phycocyanin": {"spike_fail": 30.0}}
     station["climatology"] = {"phycocyanin": JANUARY_TO_DECEMBER}
     data["feeds"][0]["variable_names"] = {"PC": "phycocyanin"}
+    station["stored_only"] = ["chlorophyll_raw_volts"]
+    lab = next(f for f in data["feeds"] if f["name"] == "lab-results")
+    lab["units"] = {"ug/L N (nitrate+nitrite)": "ug/L N"}
+    lab["detection_limits"] = {"nitrate": 2.0}
+    lab["station_variable_names"] = {station["id"]: {"chlorophyll_a": "chlorophyll_fluorescence"}}
     return data
 
 
@@ -61,7 +66,8 @@ def test_an_unknown_key_in_any_table_is_refused_with_file_and_dotted_key():
     keys = [key for key, _ in tables(with_every_table())]
     assert {"", "service", "filter", "qc.phycocyanin", "water_bodies[0].model", "water_bodies[1].alerts.levels[0]",
             "water_bodies[0].inflows[0]", "stations[0].climatology", "feeds[0].columns.chl_fluor",
-            "feeds[0].variable_names", "subscribers[0]"} <= set(keys)
+            "feeds[0].variable_names", "subscribers[0]", "feeds[2].units", "feeds[2].detection_limits",
+            "feeds[2].station_variable_names", "feeds[2].station_variable_names.CR-FA"} <= set(keys)
     for key in keys:
         data = with_every_table()
         table = dict(tables(data))[key]

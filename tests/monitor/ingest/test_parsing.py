@@ -38,18 +38,21 @@ def test_wide_buoy_file_local_time_to_utc_and_rfu_calibration(config):
     assert chl[0] == 4.5 and np.isnan(chl[1])  # an empty cell is a missing reading
 
 
-def test_long_lab_file_converts_units_and_halves_below_detection(config):
-    feed = config.feed("lab")
+def test_long_lab_file_converts_units_and_keeps_below_detection_as_censored(config):
+    feed = config.feed("lab")  # written below_detection = "half": an older config, read as "censored"
+    assert feed.below_detection == "censored"
     payload = ("sampled_at,site,variable,value,unit\n"
                "2026-07-01 10:00,FW-LAB,nitrate,0.35,mg/L\n"
                "2026-07-01 10:00,FW-LAB,microcystin,<0.1,ug/L\n"
+               "2026-07-01 10:00,FW-LAB,srp,<0.002,mg/L P\n"
                "2026-07-01 10:00,FW-LAB,chlorophyll_a,12,µg/L\n").encode()
     p = parse_payload(payload, feed, config, now=NOW)
     assert not p.rejected
-    got = dict(zip(p.variable, p.value))
-    assert got["nitrate"] == pytest.approx(350.0)
-    assert got["microcystin"] == pytest.approx(0.05)  # below_detection = "half"
-    assert got["chlorophyll_a"] == 12.0
+    got = {v: (x, c) for v, x, c in zip(p.variable, p.value, p.censored)}
+    assert got["nitrate"] == (pytest.approx(350.0), False)
+    assert got["microcystin"] == (pytest.approx(0.1), True)  # censored, its detection limit (never halved)
+    assert got["srp"] == (pytest.approx(2.0), True)  # the limit is converted like a value: 0.002 mg/L = 2 µg/L
+    assert got["chlorophyll_a"] == (12.0, False)
 
 
 def test_below_detection_reject_keeps_the_reason(config):
@@ -86,12 +89,12 @@ def test_unknown_station_variable_and_unit_are_rejected(config):
     feed = config.feed("lab")
     payload = (b"sampled_at,site,variable,value,unit\n"
                b"2026-07-01 10:00,NOWHERE,nitrate,0.3,mg/L\n"
-               b"2026-07-01 10:00,FW-LAB,turbidity,3,NTU\n"
+               b"2026-07-01 10:00,FW-LAB,salinity,3,PSU\n"
                b"2026-07-01 10:00,FW-LAB,nitrate,3,furlongs\n")
     p = parse_payload(payload, feed, config, now=NOW)
     reasons = [r.reason for r in p.rejected]
     assert reasons[0] == "unknown station 'NOWHERE'"
-    assert reasons[1].startswith("unknown variable 'turbidity'")
+    assert reasons[1].startswith("unknown variable 'salinity'")
     assert reasons[2].startswith("unknown unit 'furlongs' for nitrate")
 
 

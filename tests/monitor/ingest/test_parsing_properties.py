@@ -4,7 +4,9 @@ Whatever the bytes — wrong encodings, BOMs, huge fields, odd time formats,
 duplicate headers, injection strings — the parser does not raise, every
 value it yields is a number that was written as a plain decimal in the
 payload (or a missing reading), and every record is accounted for: it
-yields readings, or a rejection with its line, or both.
+yields readings, or a rejection with its line, or both. (The stored values'
+guarantees — nothing non-finite, no sentinel, no unmarked censored value —
+are checked in ``test_value_properties.py``.)
 """
 
 from __future__ import annotations
@@ -145,9 +147,11 @@ def test_accepted_values_are_exactly_the_plain_numbers_written(rows):
     parsed = parse_payload("\n".join(lines).encode(), BUOYS, CONFIG, origin="drop/FW-1/x.csv", now=NOW)
     check_accounting(parsed)
     columns = {"chlorophyll_fluorescence": 1, "phycocyanin": 2, "water_temperature": 3}
-    for var, value, line in zip(parsed.variable, parsed.value, parsed.line):
+    for var, value, censored, line in zip(parsed.variable, parsed.value, parsed.censored, parsed.line):
         written = rows[row_at_line[int(line)]][columns[var]].strip()
-        if np.isnan(value):
+        if censored:  # the feed's below_detection is "censored" (the default): "<x" keeps its limit x
+            assert written.startswith("<") and value == float(written[1:].strip())
+        elif np.isnan(value):
             assert written.lower() in {"", "na", "n/a", "nan", "null", "none"}
         else:
             assert NUMBER.fullmatch(written), f"stored {value!r} from {written!r}"

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from monitor.config import Calibration
-from monitor.ingest.units import UnitError, conversion, normalize_unit, to_canonical
+from monitor.ingest.units import Resolved, UnitError, conversion, normalize_unit, resolve, to_canonical
 
 
 @pytest.mark.parametrize("unit, value, expected", [
@@ -62,13 +62,20 @@ def test_rfu_without_calibration_is_rejected_with_a_hint():
 
 
 def test_unknown_unit_names_what_is_accepted():
-    with pytest.raises(UnitError, match=r"unknown unit 'furlongs' for secchi_depth; expected .*ft.*m"):
+    with pytest.raises(UnitError, match=r"unknown unit 'furlongs' for secchi_depth; expected m, cm, mm, ft, in$"):
         conversion("secchi_depth", "furlongs")
 
 
+def test_unknown_unit_lists_the_spellings_people_write():
+    with pytest.raises(UnitError, match=r"expected ug/L N, mg/L N, ug/L NO3, mg/L NO3, ug/L, mg/L, ppb, ppm$"):
+        conversion("nitrate", "furlongs")
+    with pytest.raises(UnitError, match=r"expected ug/L P, mg/L P, ug/L PO4, mg/L PO4, ug/L, mg/L, ppb, ppm$"):
+        conversion("srp", "mmol/L")
+
+
 def test_unknown_variable_is_rejected():
-    with pytest.raises(UnitError, match="unknown variable 'turbidity'"):
-        conversion("turbidity", "NTU")
+    with pytest.raises(UnitError, match="unknown variable 'salinity'"):
+        conversion("salinity", "PSU")
 
 
 def test_temperature_unit_is_not_accepted_for_a_concentration():
@@ -80,3 +87,60 @@ def test_normalize_unit_spellings():
     assert normalize_unit(" µg / L ") == "ug/l"
     assert normalize_unit("m³/s") == "m3/s"
     assert normalize_unit("W m-2") == "w/m2"
+
+
+@pytest.mark.parametrize("variable, unit, value, expected, read_as", [
+    ("nitrate", "ug/L N (nitrate+nitrite)", 120.0, 120.0, "ug/L N"),
+    ("chlorophyll_a", "ug/L (extracted; lab)", 7.5, 7.5, "ug/L"),
+    ("wind_speed", "m/s (assumed)", 3.0, 3.0, "m/s"),
+    ("srp", "mg/L P (filtered (0.45 um))", 0.004, 4.0, "mg/L P"),  # nested annotations
+    ("water_temperature", "°F (logger)", 68.0, 20.0, "°F"),
+])
+def test_an_annotation_in_parentheses_is_ignored_where_the_rest_is_a_known_unit(variable, unit, value, expected,
+                                                                                  read_as):
+    r = resolve(variable, unit)
+    assert r.scale * value + r.offset == pytest.approx(expected)
+    assert r.read_as == read_as
+
+
+def test_a_chemical_form_in_parentheses_belongs_to_the_unit():
+    # mg/L as N → µg N/L × 1000; as NO3⁻ × 14.007/62.004 (IUPAC atomic weights)
+    assert conversion("nitrate", "mg/L (as N)") == (pytest.approx(1000.0), 0.0)
+    assert conversion("nitrate", "mg/L (NO3)")[0] == pytest.approx(1000.0 * 14.007 / 62.004)
+    # a parenthesised form that does not fit the variable is not dropped as if it were an annotation
+    with pytest.raises(UnitError, match=r"unknown unit 'ug/L \(as NO3\)' \(read as 'ug/L as no3' without the "
+                                        r"annotation in parentheses\) for srp; expected ug/L P"):
+        conversion("srp", "ug/L (as NO3)")
+
+
+def test_annotations_are_no_way_around_an_unknown_unit():
+    with pytest.raises(UnitError, match=r"unknown unit 'furlongs \(approx\.\)' \(read as 'furlongs' without the "
+                                        r"annotation in parentheses\) for secchi_depth; expected m, cm, mm, ft, in"):
+        conversion("secchi_depth", "furlongs (approx.)")
+
+
+def test_a_feeds_unit_map_reads_its_own_spellings_as_known_units():
+    unit_map = {"NOx-N ppb": "ug/L N", "mgP/L (TP, unfiltered)": "mg/L P"}
+    assert resolve("nitrate", "noX-n  PPB", unit_map=unit_map) == Resolved(1.0, 0.0)  # matched normalised
+    assert resolve("total_phosphorus", "mgP/L (TP, unfiltered)", unit_map=unit_map).scale == pytest.approx(1000.0)
+    with pytest.raises(UnitError, match="unknown unit 'NOx-N ppb' for water_temperature"):
+        resolve("water_temperature", "NOx-N ppb")
+
+
+@pytest.mark.parametrize("variable, unit, value, expected", [
+    # NH4⁺ as N: × 14.007/18.038 (N 14.007, H 1.008; IUPAC atomic weights)
+    ("ammonium", "mg/L NH4", 1.0, 1000.0 * 14.007 / 18.038),
+    ("ammonium", "mg/L NH4-N", 0.05, 50.0),
+    ("total_nitrogen", "mg N/L", 0.8, 800.0),
+    # dissolved O2: 1 µmol/L = 31.998 µg/L (O 15.999; IUPAC atomic weights)
+    ("dissolved_oxygen", "umol/L", 250.0, 250.0 * 31.998e-3),
+    ("dissolved_oxygen", "mg/L", 8.2, 8.2),
+    ("oxygen_saturation", "% sat", 104.0, 104.0),
+    ("ph", "-", 8.1, 8.1), ("ph", "", 8.1, 8.1), ("ph", "pH units", 8.1, 8.1),
+    ("turbidity", "FNU", 12.0, 12.0),  # FNU taken as NTU (common practice; ISO 7027 vs EPA 180.1 differ)
+    # 1 S/m = 10 mS/cm = 10⁴ µS/cm (SI prefixes); 1 mho = 1 S
+    ("specific_conductance", "mS/cm", 0.45, 450.0), ("specific_conductance", "S/m", 0.045, 450.0),
+    ("specific_conductance", "µmho/cm", 450.0, 450.0), ("specific_conductance", "uS cm-1", 450.0, 450.0),
+])
+def test_the_new_variables_convert_to_their_canonical_units(variable, unit, value, expected):
+    assert to_canonical([value], variable, unit)[0] == pytest.approx(expected)

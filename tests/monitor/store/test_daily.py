@@ -46,3 +46,24 @@ def test_daily_means_match_pandas_windows_including_times_on_a_window_end(engine
     assert got.day_end_utc.tolist() == list(want.index)
     assert np.allclose(got.value.to_numpy(), want["mean"].to_numpy(), rtol=1e-12)
     assert got.n.tolist() == want["size"].tolist()
+
+
+def test_censored_readings_never_enter_a_mean_and_are_counted_on_request(engine):
+    rows = [  # (hours after the anchor, value, censored, detection limit, flag)
+        (1, 4.0, 0, None, 1), (2, None, 1, 0.5, 9), (3, 6.0, 0, None, 1),  # window 1: mean 5, one censored
+        (25, None, 1, 0.5, 9), (26, None, 1, 2.0, 9), (27, None, 1, None, 9),  # window 2: censored only
+    ]
+    with engine.begin() as conn:
+        batch = conn.execute(insert(schema.ingest_batches).values(
+            feed="t", origin="t", sha256="0" * 64, received_at=ANCHOR, status="ok")).inserted_primary_key[0]
+        conn.execute(insert(schema.readings), [
+            dict(station_id="S1", variable="nitrate", time_utc=ANCHOR + dt.timedelta(hours=h), value=v, censored=c,
+                 detection_limit=dl, qc_flag=f, source="t", batch_id=batch) for h, v, c, dl, f in rows])
+    args = dict(stations=["S1"], variables=["nitrate"], anchor=ANCHOR, start=ANCHOR, end=ANCHOR + dt.timedelta(days=3))
+    plain = daily_means(engine, max_flag=9, **args)
+    assert plain[["value", "n"]].values.tolist() == [[5.0, 2]]
+    both = daily_means(engine, with_censored=True, **args)
+    assert both["day_end_utc"].tolist() == [pd.Timestamp(ANCHOR + dt.timedelta(days=k)) for k in (1, 2)]
+    assert both["n"].tolist() == [2, 0] and both["n_censored"].tolist() == [1, 3]
+    assert both["value"].iloc[0] == 5.0 and np.isnan(both["value"].iloc[1])
+    assert both["detection_limit"].tolist() == [0.5, 2.0]  # the largest known limit of the window
