@@ -88,9 +88,13 @@ def test_token_is_compared_in_constant_time(monkeypatch, push_client):
     assert calls == [(b"nope", TOKEN.encode())]
 
 
-def test_unknown_feed_is_404_and_other_kinds_are_not_push_targets(push_client):
-    assert push_client.post("/api/v1/push/nope", json=RECORDS, headers=auth()).status_code == 404
-    assert push_client.post("/api/v1/push/buoys", json=RECORDS, headers=auth()).status_code == 404
+def test_unknown_feed_and_other_kinds_answer_like_a_wrong_token(push_client):
+    # feed names cannot be discovered: an unknown feed, a feed of another kind and a wrong token look alike
+    wrong = push_client.post(URL, json=RECORDS, headers=auth("wrong"))
+    for url in ("/api/v1/push/nope", "/api/v1/push/buoys"):
+        r = push_client.post(url, json=RECORDS, headers=auth())
+        assert (r.status_code, r.get_json(), r.headers.get("WWW-Authenticate")) == \
+            (401, wrong.get_json(), wrong.headers["WWW-Authenticate"])
 
 
 def test_every_row_rejected_is_422(push_client):
