@@ -14,7 +14,7 @@ import hashlib
 from flask import Blueprint, Response, abort, render_template, request, url_for
 
 from monitor.store import station_health, status
-from web import basin_or_404, get_config, get_engine, now, params, palette, water_body_or_404
+from web import basin_or_404, get_config, get_engine, now, palette, params, water_body_or_404
 from web.charts import chart_urls
 from web.formatting import zone
 from web.schematic import layout

@@ -30,6 +30,7 @@ from monitor.alerting.caution import CAUTION
 from monitor.ingest.batches import ingest_bytes
 from web.push_report import MAX_REPORTED, rejections
 from web.security import MAX_BODY_BYTES
+
 _FORMATS = {"application/json": "json", "text/csv": "csv", "application/csv": "csv"}
 
 push_api = Blueprint("push_api", __name__)
