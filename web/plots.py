@@ -85,10 +85,17 @@ def _legend(fig, ax, font: float, size: str) -> None:
                    ncol=2 if size == "narrow" else min(4, len(handles)))
 
 
-def fan_chart(*, title: str, forecast: list[dict], history: list[dict], observed: list[dict], levels,
-              tz: dt.tzinfo, window: tuple[dt.datetime, dt.datetime], fmt: str = "svg", size: str = "wide",
-              analysis_utc: dt.datetime | None = None) -> bytes:
-    """The fan chart as PNG or SVG bytes.
+def fan_chart(*, fmt: str = "svg", size: str = "wide", **chart) -> bytes:
+    """The fan chart (:func:`fan_figure`) as PNG or SVG bytes."""
+    _check(fmt, size)
+    with _RENDER:
+        return _save(fan_figure(size=size, **chart), fmt)
+
+
+def fan_figure(*, title: str, forecast: list[dict], history: list[dict], observed: list[dict], levels,
+               tz: dt.tzinfo, window: tuple[dt.datetime, dt.datetime], size: str = "wide",
+               analysis_utc: dt.datetime | None = None) -> Figure:
+    """The fan chart's figure (call under the render lock, or from one thread).
 
     ``forecast``: rows with valid_utc and q05, q25, q50, q75, q95 [µg/L];
     ``history``: rows with analysis_utc and q05, q50, q95 [µg/L];
@@ -96,47 +103,46 @@ def fan_chart(*, title: str, forecast: list[dict], history: list[dict], observed
     ``levels``: the water body's AlertLevel ladder; ``tz``: its time zone;
     ``window``: the (start, end) of the x-axis (aware datetimes).
     """
-    _check(fmt, size)
-    with _RENDER:
-        fig, font = _figure(size)
-        ax = fig.add_subplot()
-        values: list[float] = []
-        hist = [h for h in history if "q50" in h]
-        if hist:
-            t = [h["analysis_utc"] for h in hist]
-            if all("q05" in h and "q95" in h for h in hist):
-                ax.fill_between(t, [h["q05"] for h in hist], [h["q95"] for h in hist], color=palette.ANALYSIS,
-                                alpha=0.18, linewidth=0, label="analysis 5–95 %")
-                values += [h["q95"] for h in hist]
-            ax.plot(t, [h["q50"] for h in hist], color=palette.ANALYSIS, linewidth=1.3, label="analysis median")
-            values += [h["q50"] for h in hist]
-        fc = [f for f in forecast if all(k in f for k in ("q05", "q25", "q50", "q75", "q95"))]
-        if fc:
-            t = [f["valid_utc"] for f in fc]
-            ax.fill_between(t, [f["q05"] for f in fc], [f["q95"] for f in fc], color=palette.FORECAST, alpha=0.2,
-                            linewidth=0, label="forecast 5–95 %")
-            ax.fill_between(t, [f["q25"] for f in fc], [f["q75"] for f in fc], color=palette.FORECAST, alpha=0.4,
-                            linewidth=0, label="forecast 25–75 %")
-            ax.plot(t, [f["q50"] for f in fc], color=palette.FORECAST, linewidth=2.0, label="forecast median")
-            values += [f["q95"] for f in fc]
-        if observed:
-            ax.plot([o["day_start_utc"] + dt.timedelta(hours=12) for o in observed], [o["mean"] for o in observed],
-                    linestyle="none", marker="o", markersize=4.5, markerfacecolor=palette.OBSERVED,
-                    markeredgecolor="white", markeredgewidth=0.6, label="observed daily mean")
-            values += [o["mean"] for o in observed]
-        _levels(ax, levels, max(values) if values else None, font)
-        if analysis_utc is not None:
-            ax.axvline(analysis_utc, color="#8A949B", linewidth=0.9)
-        ax.set_ylabel("cyanobacterial chl-a [µg/L]", fontsize=font)
-        ax.set_title(title, fontsize=font + 1, loc="left")
-        _time_axis(ax, tz, window, font)
-        ax.grid(True, color="#dddddd", linewidth=0.6)
-        ax.spines[["top", "right"]].set_visible(False)
-        if not (hist or fc or observed):
-            ax.text(0.5, 0.5, "no forecast or observations yet", transform=ax.transAxes, ha="center",
-                    va="center", color="#5C6770", fontsize=font + 1)
-        _legend(fig, ax, font, size)
-        return _save(fig, fmt)
+    _check("svg", size)
+    fig, font = _figure(size)
+    ax = fig.add_subplot()
+    values: list[float] = []
+    hist = [h for h in history if "q50" in h]
+    if hist:
+        t = [h["analysis_utc"] for h in hist]
+        if all("q05" in h and "q95" in h for h in hist):
+            ax.fill_between(t, [h["q05"] for h in hist], [h["q95"] for h in hist], color=palette.ANALYSIS,
+                            alpha=0.18, linewidth=0, label="analysis 5–95 %")
+            values += [h["q95"] for h in hist]
+        ax.plot(t, [h["q50"] for h in hist], color=palette.ANALYSIS, linewidth=1.3, label="analysis median")
+        values += [h["q50"] for h in hist]
+    fc = [f for f in forecast if all(k in f for k in ("q05", "q25", "q50", "q75", "q95"))]
+    if fc:
+        t = [f["valid_utc"] for f in fc]
+        ax.fill_between(t, [f["q05"] for f in fc], [f["q95"] for f in fc], color=palette.FORECAST, alpha=0.2,
+                        linewidth=0, label="forecast 5–95 %")
+        ax.fill_between(t, [f["q25"] for f in fc], [f["q75"] for f in fc], color=palette.FORECAST, alpha=0.4,
+                        linewidth=0, label="forecast 25–75 %")
+        ax.plot(t, [f["q50"] for f in fc], color=palette.FORECAST, linewidth=2.0, label="forecast median")
+        values += [f["q95"] for f in fc]
+    if observed:
+        ax.plot([o["day_start_utc"] + dt.timedelta(hours=12) for o in observed], [o["mean"] for o in observed],
+                linestyle="none", marker="o", markersize=4.5, markerfacecolor=palette.OBSERVED,
+                markeredgecolor="white", markeredgewidth=0.6, color=palette.OBSERVED, label="observed daily mean")
+        values += [o["mean"] for o in observed]
+    _levels(ax, levels, max(values) if values else None, font)
+    if analysis_utc is not None:
+        ax.axvline(analysis_utc, color="#8A949B", linewidth=0.9)
+    ax.set_ylabel("cyanobacterial chl-a [µg/L]", fontsize=font)
+    ax.set_title(title, fontsize=font + 1, loc="left")
+    _time_axis(ax, tz, window, font)
+    ax.grid(True, color="#dddddd", linewidth=0.6)
+    ax.spines[["top", "right"]].set_visible(False)
+    if not (hist or fc or observed):
+        ax.text(0.5, 0.5, "no forecast or observations yet", transform=ax.transAxes, ha="center",
+                va="center", color="#5C6770", fontsize=font + 1)
+    _legend(fig, ax, font, size)
+    return fig
 
 
 def _levels(ax, levels, top: float | None, font: float) -> None:
@@ -150,8 +156,9 @@ def _levels(ax, levels, top: float | None, font: float) -> None:
             ax.axhline(lv.chlorophyll_ugL, color=palette.level_colour(lv.number), linewidth=1.6,
                        linestyle=palette.level_dash(lv.number), label=f"{lv.name} ({lv.chlorophyll_ugL:g} µg/L)")
         else:
-            ax.annotate(f"↑ {lv.name} at {lv.chlorophyll_ugL:g} µg/L, above this chart", xy=(1, 1),
-                        xycoords="axes fraction", ha="right", va="bottom", fontsize=font - 1, color="#3b4349")
+            ax.text(0.01, 0.98, f"↑ {lv.name} at {lv.chlorophyll_ugL:g} µg/L, above this chart",
+                    transform=ax.transAxes, ha="left", va="top", fontsize=font - 1, color="#3b4349",
+                    bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.8, "pad": 1.5})
             break
     ax.set_ylim(0, ceiling)
 

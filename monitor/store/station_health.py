@@ -15,6 +15,7 @@ from collections.abc import Iterable
 from sqlalchemy import and_, func, select
 from sqlalchemy.engine import Engine
 
+from assimilation.augmentation import GAIN_PREFIX
 from monitor.config.model_setup import chlorophyll_sensors
 from monitor.ingest.qc import TESTS
 from monitor.ingest.qc_flags import FAIL, MISSING, NOT_EVALUATED, PASS, SUSPECT
@@ -61,7 +62,7 @@ def _gain(run: dict | None, config, water_body, station_id: str) -> dict | None:
     sensors = chlorophyll_sensors(config, water_body)
     if station_id not in sensors:
         return None
-    key = f"gain:{sensors.index(station_id)}"
+    key = f"{GAIN_PREFIX}:{sensors.index(station_id)}"
     diagnostics = run.get("diagnostics") or {}
     mean = (diagnostics.get("parameter_mean") or {}).get(key)
     if mean is None:

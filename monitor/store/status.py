@@ -312,8 +312,9 @@ def water_body_overview(engine: Engine, config, water_body, *, now: dt.datetime 
         level = st["level"] if st else 0
         recent = None
         if run is not None:
-            obs = observed_daily(engine, config, water_body.id, b.id, tz=tz,
-                                 start=run["analysis_utc"] - 2 * DAY, end=run["analysis_utc"] + DAY)
+            end = run["analysis_utc"] + DAY if now is None else min(run["analysis_utc"] + DAY, now)
+            obs = observed_daily(engine, config, water_body.id, b.id, tz=tz, start=run["analysis_utc"] - 2 * DAY,
+                                 end=end)
             recent = obs[-1] if obs else None
         has_forecast = b.id in maxima
         basins.append({
