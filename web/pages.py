@@ -104,7 +104,7 @@ def runs(water_body_id: str):
 @pages.route("/levels.css")
 def level_css():
     """The level colours as a stylesheet, generated from :mod:`web.palette`."""
-    body = palette.level_css(max(len(wb.alerts.levels) for wb in get_config().water_bodies))
+    body = palette.level_css(max(len(palette.LEVELS), *(len(wb.alerts.levels) for wb in get_config().water_bodies)))
     response = Response(body, mimetype="text/css")
     response.headers["Cache-Control"] = "public, max-age=3600"
     response.set_etag(hashlib.sha256(body.encode("utf-8")).hexdigest()[:16])
