@@ -43,7 +43,7 @@ SCHEMAS = {
     "Basin": _obj(["id", "name", "flows_to"], id={"type": "string"}, name={"type": "string"},
                   volume_m3={"type": "number"}, mean_depth_m={"type": "number"}, area_m2={"type": "number"},
                   flows_to={"type": "string"}),
-    "WaterBody": _obj(["caution", "id", "name", "use", "timezone", "basins", "framework", "links"],
+    "WaterBody": _obj(["id", "name", "use", "timezone", "basins", "framework", "links"],
                       caution=_ref("Caution"), id={"type": "string"}, name={"type": "string"},
                       use={"type": "string", "enum": ["drinking-water", "recreation"]},
                       timezone={"type": "string"}, basins={"type": "array", "items": _ref("Basin")},
