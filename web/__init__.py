@@ -49,7 +49,7 @@ def create_app(config: Config | str | os.PathLike | None = None, *,
     wall clock by default). ``settings`` are Flask config values set before
     the app is built (e.g. ``{"RATELIMIT_ENABLED": False}``).
     """
-    from web import formatting, security
+    from web import answer_cache, formatting, security
     from web.api import api
     from web.chart_cache import ChartCache
     from web.charts import charts
@@ -80,6 +80,7 @@ def create_app(config: Config | str | os.PathLike | None = None, *,
     security.csrf.exempt(api)
     security.csrf.exempt(push_api)
     limit(app, limiter)
+    answer_cache.install(app)
     app.extensions["bloomline"]["openapi"] = lambda: openapi_document(app)
 
     members = cfg.filter.members

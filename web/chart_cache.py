@@ -1,10 +1,11 @@
-"""Rendered charts kept in memory, keyed by what they draw.
+"""Rendered charts and answers kept in memory, keyed by what they show.
 
 A chart is rendered once per key (kind, water body, basin, run, format,
 size and the fingerprint of its data, :func:`monitor.store.status.chart_version`)
-and then served from memory. Requests for a key being rendered wait for
-that one rendering instead of starting their own. The cache holds at most
-:data:`MAX_BYTES`; the least recently used charts go first.
+and then served from memory; pages and API answers likewise per URL and
+store fingerprint (:mod:`web.answer_cache`). Requests for a key being
+rendered wait for that one rendering instead of starting their own. A
+cache holds at most ``max_bytes``; the least recently used items go first.
 """
 
 from __future__ import annotations
@@ -12,19 +13,21 @@ from __future__ import annotations
 import threading
 from collections import OrderedDict
 from collections.abc import Callable, Hashable
+from typing import Any
 
 #: Memory the cache may use [bytes].
 MAX_BYTES = 64 * 1024 * 1024
 
 
 class ChartCache:
-    """A thread-safe least-recently-used store of rendered charts [bytes]."""
+    """A thread-safe least-recently-used store of rendered items (bytes, or anything ``size`` can weigh)."""
 
-    def __init__(self, max_bytes: int = MAX_BYTES):
+    def __init__(self, max_bytes: int = MAX_BYTES, size: Callable[[Any], int] = len):
         if max_bytes < 1:
             raise ValueError(f"max_bytes must be positive, got {max_bytes}")
         self.max_bytes = max_bytes
-        self._items: OrderedDict[Hashable, bytes] = OrderedDict()
+        self._weigh = size
+        self._items: OrderedDict[Hashable, Any] = OrderedDict()
         self._size = 0
         self._lock = threading.Lock()
         self._pending: dict[Hashable, threading.Lock] = {}
@@ -33,14 +36,18 @@ class ChartCache:
     def __len__(self) -> int:
         return len(self._items)
 
-    def _get(self, key: Hashable) -> bytes | None:
+    def get(self, key: Hashable) -> Any | None:
+        """The item of ``key`` if it is held, else None (nothing is rendered)."""
+        return self._get(key)
+
+    def _get(self, key: Hashable) -> Any | None:
         with self._lock:
             body = self._items.get(key)
             if body is not None:
                 self._items.move_to_end(key)
             return body
 
-    def get_or_render(self, key: Hashable, render: Callable[[], bytes]) -> bytes:
+    def get_or_render(self, key: Hashable, render: Callable[[], Any]) -> Any:
         """The chart of ``key``, rendering it with ``render()`` the first time."""
         body = self._get(key)
         if body is not None:
@@ -61,14 +68,15 @@ class ChartCache:
                     self._pending.pop(key, None)
         return body
 
-    def _put(self, key: Hashable, body: bytes) -> None:
-        if len(body) > self.max_bytes:
+    def _put(self, key: Hashable, body: Any) -> None:
+        weight = self._weigh(body)
+        if weight > self.max_bytes:
             return
         old = self._items.pop(key, None)
         if old is not None:
-            self._size -= len(old)
+            self._size -= self._weigh(old)
         self._items[key] = body
-        self._size += len(body)
+        self._size += weight
         while self._size > self.max_bytes:
             _, dropped = self._items.popitem(last=False)
-            self._size -= len(dropped)
+            self._size -= self._weigh(dropped)

@@ -87,22 +87,37 @@ def _chart(kind: str, water_body_id: str, basin_id: str, fmt: str):
     basin = basin_or_404(wb, basin_id)
     size = params.choice("size", tuple(SIZES), "wide")
     run_id = params.integer("run", None, minimum=1, maximum=status.MAX_ID)
+    asked = request.args.get("v")
+    cache = current_app.extensions["bloomline"]["charts"]
+    if run_id is not None and asked:  # a page's own link: served from memory without asking the store
+        held = cache.get((kind, wb.id, basin.id, run_id, fmt, size, asked))
+        if held is not None:
+            return _answer(held, kind, run_id, fmt, size, asked, asked)
     engine = get_engine()
     run = status.get_run(engine, run_id) if run_id is not None else status.latest_run(engine, wb.id)
     if run_id is not None and (run is None or run["water_body_id"] != wb.id):
         abort(404, description=f"{wb.name} has no forecast run {run_id}.")
     version = _version(wb, basin.id, run, kind)
-    etag = f"{kind}-{run['id'] if run else 0}-{fmt}-{size}-{version}"
-    asked = request.args.get("v")
+    key = (kind, wb.id, basin.id, run["id"] if run else None, fmt, size, version)
+    if request.if_none_match.contains(_etag(kind, key[3], fmt, size, version)):
+        body = b""
+    else:
+        body = cache.get_or_render(key, lambda: _render(kind, wb, basin, run, fmt, size))
+    return _answer(body, kind, key[3], fmt, size, version, asked)
+
+
+def _etag(kind: str, run_id: int | None, fmt: str, size: str, version: str) -> str:
+    return f"{kind}-{run_id or 0}-{fmt}-{size}-{version}"
+
+
+def _answer(body: bytes, kind: str, run_id: int | None, fmt: str, size: str, version: str, asked: str | None):
+    """The chart (or 304 when the client holds it), immutable when asked by its current fingerprint."""
+    etag = _etag(kind, run_id, fmt, size, version)
     headers = {"Cache-Control": IMMUTABLE if asked == version else "no-cache"}
     if request.if_none_match.contains(etag):
         response = Response(status=304, headers=headers)
-        response.set_etag(etag)
-        return response
-    key = (kind, wb.id, basin.id, run["id"] if run else None, fmt, size, version)
-    body = current_app.extensions["bloomline"]["charts"].get_or_render(
-        key, lambda: _render(kind, wb, basin, run, fmt, size))
-    response = Response(body, mimetype=FORMATS[fmt], headers=headers)
+    else:
+        response = Response(body, mimetype=FORMATS[fmt], headers=headers)
     response.set_etag(etag)
     return response
 

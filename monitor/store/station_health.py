@@ -82,55 +82,47 @@ def station_health(engine: Engine, config, water_body, basin_id: str, *, now: dt
     fluorometers: {"mean", "sd"} [-], else None).
     """
     since = now - dt.timedelta(days=HEALTH_DAYS)
+    drift_digit = func.substr(readings.c.qc_tests, _DRIFT_DIGIT + 1, 1)  # SQL counts characters from 1
     out = []
     with engine.connect() as conn:
         for st in config.stations_of(water_body.id, basin=basin_id):
-            last = conn.execute(select(func.max(readings.c.time_utc))
-                                .where(and_(readings.c.station_id == st.id, readings.c.time_utc <= now))).scalar()
+            # the newest reading per variable: each an index lookup on (station, variable, time)
+            lasts = [conn.execute(select(func.max(readings.c.time_utc)).where(and_(
+                readings.c.station_id == st.id, readings.c.variable == v, readings.c.time_utc <= now))).scalar()
+                for v in st.variables]
+            recent = and_(readings.c.station_id == st.id, readings.c.time_utc >= since, readings.c.time_utc <= now)
             flags = {flag: 0 for flag in FLAG_NAMES}
-            drift = 0
-            recent = conn.execute(select(readings.c.qc_flag, readings.c.qc_tests)
-                                  .where(and_(readings.c.station_id == st.id, readings.c.time_utc >= since,
-                                              readings.c.time_utc <= now)))
-            for flag, tests in recent:
-                flags[int(flag)] = flags.get(int(flag), 0) + 1
-                if len(tests or "") > _DRIFT_DIGIT and tests[_DRIFT_DIGIT] == str(SUSPECT):
-                    drift += 1
-            out.append({"id": st.id, "kind": st.kind, "variables": list(st.variables), "last_utc": last,
-                        "flags": flags, "drift_suspect": drift, "gain": _gain(run, config, water_body, st.id)})
+            for flag, n in conn.execute(select(readings.c.qc_flag, func.count()).where(recent)
+                                        .group_by(readings.c.qc_flag)):
+                flags[int(flag)] = int(n)
+            drift = conn.execute(select(func.count()).where(and_(recent, drift_digit == str(SUSPECT)))).scalar_one()
+            out.append({"id": st.id, "kind": st.kind, "variables": list(st.variables),
+                        "last_utc": max((t for t in lasts if t is not None), default=None),
+                        "flags": flags, "drift_suspect": int(drift), "gain": _gain(run, config, water_body, st.id)})
     return out
 
 
 def other_readings(engine: Engine, config, water_body_id: str, basin_id: str, *, now: dt.datetime,
                    exclude: Iterable[str] = BLOOM_VARIABLES) -> list[dict]:
-    """The newest reading at or before ``now`` of every other variable at the basin's stations.
+    """The newest reading at or before ``now`` of every other variable the basin's stations measure.
 
-    Rows (by station, then variable): station_id, variable, label, unit, time_utc,
-    value (None when reported missing) and qc_flag.
+    Rows (stations in file order, then variables by name): station_id, variable,
+    label, unit, time_utc, value (None when reported missing) and qc_flag.
     """
     exclude = set(exclude)
-    stations = [s.id for s in config.stations_of(water_body_id, basin=basin_id)]
-    if not stations:
-        return []
-    newest = (select(readings.c.station_id, readings.c.variable, func.max(readings.c.time_utc).label("t"))
-              .where(and_(readings.c.station_id.in_(stations), readings.c.variable.not_in(sorted(exclude)),
-                          readings.c.time_utc <= now))
-              .group_by(readings.c.station_id, readings.c.variable).subquery())
-    q = (select(readings.c.station_id, readings.c.variable, readings.c.time_utc, readings.c.value, readings.c.qc_flag)
-         .join(newest, and_(readings.c.station_id == newest.c.station_id, readings.c.variable == newest.c.variable,
-                            readings.c.time_utc == newest.c.t))
-         .order_by(readings.c.station_id, readings.c.variable))
-    order = {s: i for i, s in enumerate(stations)}
-    seen: set[tuple[str, str]] = set()
     out = []
     with engine.connect() as conn:
-        for r in conn.execute(q):
-            if (r.station_id, r.variable) in seen:  # two sources at the same time: the first is shown
-                continue
-            seen.add((r.station_id, r.variable))
-            var = VARIABLES.get(r.variable)
-            out.append({"station_id": r.station_id, "variable": r.variable,
-                        "label": var.label if var else r.variable, "unit": var.unit if var else "",
-                        "time_utc": r.time_utc, "value": None if r.value is None else float(r.value),
-                        "qc_flag": int(r.qc_flag)})
-    return sorted(out, key=lambda row: (order.get(row["station_id"], 0), row["variable"]))
+        for st in config.stations_of(water_body_id, basin=basin_id):
+            for variable in sorted(set(st.variables) - exclude):
+                # newest first along the (station, variable, time) index: one row read
+                r = conn.execute(select(readings.c.time_utc, readings.c.value, readings.c.qc_flag)
+                                 .where(and_(readings.c.station_id == st.id, readings.c.variable == variable,
+                                             readings.c.time_utc <= now))
+                                 .order_by(readings.c.time_utc.desc()).limit(1)).first()
+                if r is None:
+                    continue
+                var = VARIABLES.get(variable)
+                out.append({"station_id": st.id, "variable": variable, "label": var.label if var else variable,
+                            "unit": var.unit if var else "", "time_utc": r.time_utc,
+                            "value": None if r.value is None else float(r.value), "qc_flag": int(r.qc_flag)})
+    return out

@@ -23,7 +23,7 @@ from sqlalchemy.engine import Engine
 from monitor.alerting.frameworks import FRAMEWORKS
 from monitor.alerting.levels import level_info
 from monitor.alerting.rules import QUANTITY, exceedance_maxima
-from monitor.store.schema import alert_events, alert_status, forecast_runs, forecast_values, readings
+from monitor.store.schema import alert_events, alert_status, forecast_runs, forecast_values, ingest_batches, readings
 
 STATISTICS = ("mean", "q05", "q25", "q50", "q75", "q95")
 #: QC flags of readings shown as observations: 1 pass (QARTOD; "not evaluated" 2 is not shown).
@@ -334,14 +334,35 @@ def water_body_overview(engine: Engine, config, water_body, *, now: dt.datetime 
             "latest_run": run, "age": age, "basins": basins}
 
 
+def store_fingerprint(engine: Engine) -> tuple:
+    """A cheap fingerprint of everything pages and the API show from the store.
+
+    It changes when a run is stored or recomputed, an alert changes, the
+    status is evaluated, a reading arrives or a batch is recorded (a batch
+    that changes stored QC flags also adds readings or a batch row). Each
+    part is a maximum over a primary key or a small table, so it costs
+    about as much as one indexed lookup.
+    """
+    q = select(select(func.max(forecast_runs.c.id)).scalar_subquery(),
+               select(func.max(forecast_runs.c.created_at)).scalar_subquery(),
+               select(func.max(alert_events.c.id)).scalar_subquery(),
+               select(func.max(alert_status.c.updated_utc)).scalar_subquery(),
+               select(func.count()).select_from(alert_status).scalar_subquery(),
+               select(func.max(readings.c.id)).scalar_subquery(),
+               select(func.max(ingest_batches.c.id)).scalar_subquery())
+    with engine.connect() as conn:
+        return tuple(conn.execute(q).one())
+
+
 def chart_version(engine: Engine, config, water_body, basin_id: str, run: dict | None,
                   start: dt.datetime, end: dt.datetime, variables: Iterable[str]) -> str:
     """A short fingerprint of everything a basin chart over [start, end) draws.
 
     It changes when the run is recomputed, when a run enters the window,
-    when a reading of ``variables`` at the basin's stations arrives or its QC
-    flag changes, or when the water body's levels or time zone change, so a
-    chart stored under it may be cached for good.
+    when any reading or batch is stored (:func:`store_fingerprint`: a new
+    reading, or a batch whose QC re-evaluation changed stored flags), or
+    when the water body's levels or time zone change, so a chart stored
+    under it may be cached for good.
     """
     variables = list(variables)
     stations = sorted({s for v in variables for s in basin_stations(config, water_body.id, basin_id, v)})
@@ -350,11 +371,8 @@ def chart_version(engine: Engine, config, water_body, basin_id: str, run: dict |
                             .where(and_(forecast_runs.c.water_body_id == water_body.id,
                                         forecast_runs.c.analysis_utc >= start,
                                         forecast_runs.c.analysis_utc < end))).one()
-        seen = (0, None, None)
-        if stations:
-            seen = conn.execute(select(func.count(), func.max(readings.c.id), func.sum(readings.c.qc_flag))
-                                .where(and_(readings.c.station_id.in_(stations), readings.c.variable.in_(variables),
-                                            readings.c.time_utc >= start, readings.c.time_utc < end))).one()
+        seen = conn.execute(select(select(func.max(readings.c.id)).scalar_subquery(),
+                                   select(func.max(ingest_batches.c.id)).scalar_subquery())).one()
     parts = [water_body.id, basin_id, water_body.timezone, start.isoformat(), end.isoformat(),
              [(lv.number, lv.name, lv.chlorophyll_ugL) for lv in water_body.alerts.levels],
              None if run is None else (run["id"], run["created_at"].isoformat(), run["status"]),

@@ -56,13 +56,22 @@ def test_data_health_per_station(client, engine):
     assert "1 reading suspect of drift" in row
 
 
-def test_other_readings_show_the_newest_value_of_each_other_variable(client, engine):
+def test_other_readings_show_the_newest_value_of_each_other_variable(config, engine, seeded):
+    import dataclasses
+
+    from tests.web.conftest import NOW
+    from web import create_app
+
+    stations = tuple(dataclasses.replace(st, variables=(*st.variables, "water_temperature")) if st.id == "QW-1" else st
+                     for st in config.stations)
+    client = create_app(dataclasses.replace(config, stations=stations), clock=lambda: NOW).test_client()
     write_readings(engine, "QW-1", [(ANALYSIS - dt.timedelta(hours=5), 21.5, 1),
-                                    (ANALYSIS - dt.timedelta(hours=3), 22.25, 1)], variable="water_temperature")
-    write_readings(engine, "QW-1", [(ANALYSIS - dt.timedelta(hours=3), 18.0, 1)], variable="chlorophyll_fluorescence")
+                                    (ANALYSIS - dt.timedelta(hours=3), 22.25, 1),
+                                    (ANALYSIS + dt.timedelta(hours=3), 30.0, 1)],  # after now: not yet there
+                   variable="water_temperature")
     text = _text(_html(client))
     others = text[text.index("Other readings"):]
-    assert "Water temperature 22.2 °C" in others or "Water temperature 22.25 °C" in others
+    assert "QW-1 Water temperature 22.2 °C Mon 10 Aug 2026, 05:00 UTC+02:00 pass" in others
     assert "Chlorophyll-a fluorescence" not in others  # drawn on the readings chart, not repeated here
 
 
