@@ -92,10 +92,15 @@ def layout(water_body, states: dict[str, tuple[str, str]]) -> Schematic:
             arrows.append(Arrow(x, box.y + box.h, to.x + to.w / 2, to.y))
         else:
             arrows.append(Arrow(x, box.y + box.h, x, bottom + ROW_GAP * 0.8, "outlet"))
+    fed = {b.flows_to for b in water_body.basins}
     for basin_id, box in boxes.items():
         into = [i for i in water_body.inflows if i.basin == basin_id]
-        for k, inflow in enumerate(into):  # spread over the box's width
-            x = box.x + box.w * (k + 1) / (len(into) + 1)
-            arrows.append(Arrow(x, box.y - INFLOW_H, x, box.y, inflow.name))
+        for k, inflow in enumerate(into):
+            if basin_id in fed:  # the middle is taken by the flow from upstream: inflows enter on the right
+                x = box.x + box.w * (0.62 + 0.3 * k / max(1, len(into)))
+                arrows.append(Arrow(x, box.y - INFLOW_H, x, box.y, inflow.name))
+            else:  # spread over the box's width
+                x = box.x + box.w * (k + 1) / (len(into) + 1)
+                arrows.append(Arrow(x, box.y - INFLOW_H, x, box.y, inflow.name))
     height = bottom + ROW_GAP + MARGIN
     return Schematic(WIDTH, height, tuple(boxes[b.id] for b in water_body.basins), tuple(arrows))
