@@ -1,151 +1,118 @@
-"""HTML pages: the status of every water body, a page per water body, sign-up forms."""
+"""HTML pages: the status of every water body, a page per water body, per basin, and the run list.
+
+Every time is written in the water body's time zone with the zone named;
+probabilities at the ensemble's resolution (:mod:`web.formatting`). Each
+basin shows one of three states: no forecast yet, no alert level forecast
+or an alert level. The newest forecast is marked stale when a daily run is
+missing. Charts are served by :mod:`web.charts`.
+"""
 
 from __future__ import annotations
 
-import datetime as dt
+import hashlib
 
-from flask import Blueprint, Response, abort, render_template, request
+from flask import Blueprint, Response, abort, render_template, request, url_for
 
-from monitor.alerting import outbox, subscriptions
-from monitor.store import status
-from web import get_config, get_engine, now, water_body_or_404
-from web.plots import FORMATS, fan_chart
+from monitor.store import station_health, status
+from web import basin_or_404, get_config, get_engine, now, palette, params, water_body_or_404
+from web.charts import chart_urls
+from web.formatting import zone
+from web.schematic import layout
 
 pages = Blueprint("pages", __name__)
 
-#: How many days of history the water-body page plots before the analysis.
-HISTORY_DAYS = 30
+#: Runs per page of the run list.
+RUNS_PER_PAGE = 30
+#: Alert changes shown on a water body's page.
+EVENTS_SHOWN = 50
 
 
-def _basin(wb, basin_id: str):
-    for b in wb.basins:
-        if b.id == basin_id:
-            return b
-    abort(404, description=f"{wb.name} has no basin {basin_id!r}.")
+def fill_class(basin: dict) -> str:
+    """The schematic's CSS class of a basin's state."""
+    return "fill-none" if basin["state"] == "no_forecast" else f"fill-{basin['level']['number']}"
 
 
-@pages.app_template_filter("utc")
-def _fmt_utc(t: dt.datetime | None, fmt: str = "%Y-%m-%d %H:%M") -> str:
-    return "—" if t is None else t.astimezone(dt.UTC).strftime(fmt) + " UTC"
-
-
-@pages.app_template_filter("day")
-def _fmt_day(t: dt.datetime | None) -> str:
-    return "—" if t is None else t.astimezone(dt.UTC).strftime("%a %d %b")
-
-
-@pages.app_template_filter("pct")
-def _fmt_pct(p: float | None) -> str:
-    if p is None:
-        return "—"
-    if 0 < p < 0.005:
-        return "< 1 %"  # not "0 %": a small chance is not no chance
-    if 0.995 <= p < 1:
-        return "> 99 %"
-    return f"{100 * p:.0f} %"
-
-
-@pages.app_template_filter("ugl")
-def _fmt_ugl(x: float | None) -> str:
-    if x is None:
-        return "—"
-    return f"{x:.2f}" if x < 10 else f"{x:.1f}"
+def _context(wb) -> dict:
+    return {"wb": wb, "tz": zone(wb.timezone), "zone_name": wb.timezone}
 
 
 @pages.route("/")
 def index():
     cfg, engine = get_config(), get_engine()
-    overviews = [status.water_body_overview(engine, cfg, wb) for wb in cfg.water_bodies]
-    return render_template("status.html", overviews=overviews)
+    overviews = [status.water_body_overview(engine, cfg, wb, now=now()) for wb in cfg.water_bodies]
+    return render_template("status.html", overviews=overviews,
+                           zones={wb.id: zone(wb.timezone) for wb in cfg.water_bodies})
 
 
 @pages.route("/water-bodies/<water_body_id>")
 def water_body(water_body_id: str):
     cfg, engine = get_config(), get_engine()
     wb = water_body_or_404(water_body_id)
-    overview = status.water_body_overview(engine, cfg, wb)
+    overview = status.water_body_overview(engine, cfg, wb, now=now())
     run = overview["latest_run"]
-    tables = {}
-    if run is not None:
-        for b in wb.basins:
-            tables[b.id] = status.forecast_series(engine, run, b.id)
-    events = status.list_alert_events(engine, wb.id, limit=50)
-    return render_template("water_body.html", wb=wb, overview=overview, run=run, tables=tables,
-                           events=events, basin_names={b.id: b.name for b in wb.basins})
+    states = {b["id"]: (fill_class(b), _state_words(b)) for b in overview["basins"]}
+    charts = {b.id: chart_urls("forecast", wb, b.id, run) for b in wb.basins}
+    events = status.list_alert_events(engine, wb.id, limit=EVENTS_SHOWN)
+    return render_template("water_body.html", **_context(wb), overview=overview, run=run, charts=charts,
+                           events=events, schematic=layout(wb, states),
+                           basin_names={b.id: b.name for b in wb.basins})
 
 
-@pages.route("/water-bodies/<water_body_id>/basins/<basin_id>/forecast.<fmt>")
-def forecast_plot(water_body_id: str, basin_id: str, fmt: str):
-    if fmt not in FORMATS:
-        abort(404, description=f"Charts come as {' or '.join(FORMATS)}.")
+def _state_words(b: dict) -> str:
+    if b["state"] == "no_forecast":
+        return "no forecast yet"
+    return b["level"]["name"]
+
+
+@pages.route("/water-bodies/<water_body_id>/basins/<basin_id>")
+def basin(water_body_id: str, basin_id: str):
     cfg, engine = get_config(), get_engine()
     wb = water_body_or_404(water_body_id)
-    basin = _basin(wb, basin_id)
-    run_id = request.args.get("run", type=int)
-    run = status.get_run(engine, run_id) if run_id else status.latest_run(engine, wb.id)
-    if run_id and (run is None or run["water_body_id"] != wb.id):
-        abort(404, description=f"{wb.name} has no forecast run {run_id}.")
-    forecast, history, observed, t0 = [], [], [], None
-    if run is not None:
-        t0 = run["analysis_utc"]
-        start = t0 - dt.timedelta(days=HISTORY_DAYS)
-        end = t0 + dt.timedelta(days=wb.alerts.horizon_days + 1)
-        forecast = status.forecast_series(engine, run, basin.id)
-        history = status.analysis_history(engine, wb.id, basin.id, start=start, end=t0)
-        observed = status.observed_daily(engine, cfg, wb.id, basin.id, start=start, end=end)
-    title = f"{basin.name}, {wb.name}" + (f" — forecast from {t0:%d %b %Y}" if t0 else "")
-    body = fan_chart(title=title, forecast=forecast, history=history, observed=observed,
-                     levels=wb.alerts.levels, fmt=fmt, analysis_utc=t0)
-    return Response(body, mimetype=FORMATS[fmt], headers={"Cache-Control": "no-cache"})
+    b = basin_or_404(wb, basin_id)
+    run_id = params.integer("run", None, minimum=1, maximum=status.MAX_ID)
+    newest = status.latest_run(engine, wb.id)
+    run = newest
+    if run_id is not None:
+        run = status.get_run(engine, run_id)
+        if run is None or run["water_body_id"] != wb.id:
+            abort(404, description=f"{wb.name} has no forecast run {run_id}.")
+    overview = status.water_body_overview(engine, cfg, wb, now=now(), run=run)
+    current = next(x for x in overview["basins"] if x["id"] == b.id)
+    t = now()
+    table = status.forecast_series(engine, run, b.id) if run is not None else []
+    return render_template(
+        "basin.html", **_context(wb), basin=b, overview=overview, run=run, newest=newest, current=current,
+        neighbours=status.run_neighbours(engine, run) if run is not None else {"previous": None, "next": None},
+        table=table, events=status.list_alert_events(engine, wb.id, basin_id=b.id, limit=EVENTS_SHOWN),
+        charts={"forecast": chart_urls("forecast", wb, b.id, run), "readings": chart_urls("readings", wb, b.id, run)},
+        health=station_health.station_health(engine, cfg, wb, b.id, now=t, run=newest),
+        others=station_health.other_readings(engine, cfg, wb.id, b.id, now=t),
+        flag_names=station_health.FLAG_NAMES, health_days=station_health.HEALTH_DAYS)
 
 
-@pages.route("/subscribe", methods=["GET", "POST"])
-def subscribe():
-    cfg, engine = get_config(), get_engine()
-    form = {"name": "", "email": "", "water_body": request.args.get("water_body", ""), "min_level": "1"}
-    error = None
-    if request.method == "POST":
-        form = {k: request.form.get(k, "").strip() for k in form}
-        try:
-            wb = cfg.water_body(form["water_body"])
-        except KeyError:
-            wb = None
-            error = "Choose a water body."
-        if wb is not None:
-            try:
-                level = int(form["min_level"] or "1")
-                sub = subscriptions.subscribe(
-                    engine, name=form["name"], email=form["email"], water_body_id=wb.id, min_level=level,
-                    known_water_bodies=[w.id for w in cfg.water_bodies], max_level=len(wb.alerts.levels),
-                    now=now())
-            except (ValueError, subscriptions.SubscriptionError) as exc:
-                error = str(exc) if isinstance(exc, subscriptions.SubscriptionError) else "Choose an alert level."
-            else:
-                if not sub.active:
-                    outbox.enqueue_confirmation(engine, wb, sub, base_url=cfg.service.base_url, now=now())
-                return render_template("subscribe_done.html", wb=wb, sub=sub), 201
-    return render_template("subscribe.html", form=form, error=error), (400 if error else 200)
-
-
-def _token_page(token: str, action: str):
+@pages.route("/water-bodies/<water_body_id>/runs")
+def runs(water_body_id: str):
+    wb = water_body_or_404(water_body_id)
     engine = get_engine()
-    sub = subscriptions.by_token(engine, token)
-    if sub is None:
-        abort(404, description="This link is not valid (it may be from an old email).")
-    wb = water_body_or_404(sub.water_body_id)
-    done = False
-    if request.method == "POST":
-        sub = (subscriptions.confirm if action == "confirm" else subscriptions.unsubscribe)(engine, token)
-        done = True
-    return render_template("subscription_token.html", sub=sub, wb=wb, action=action, done=done)
+    page = params.integer("page", 1, minimum=1, maximum=1_000_000)
+    total = status.count_runs(engine, wb.id)
+    found = status.list_runs(engine, wb.id, limit=RUNS_PER_PAGE, offset=(page - 1) * RUNS_PER_PAGE)
+    pages_total = max(1, -(-total // RUNS_PER_PAGE))
+    return render_template("runs.html", **_context(wb), runs=found, page=page, pages_total=pages_total, total=total)
 
 
-@pages.route("/subscribe/confirm/<token>", methods=["GET", "POST"])
-def confirm(token: str):
-    # GET shows a button and POST acts, so link scanners in mail systems change nothing.
-    return _token_page(token, "confirm")
+@pages.route("/levels.css")
+def level_css():
+    """The level colours as a stylesheet, generated from :mod:`web.palette`."""
+    body = palette.level_css(max(len(palette.LEVELS), *(len(wb.alerts.levels) for wb in get_config().water_bodies)))
+    response = Response(body, mimetype="text/css")
+    response.headers["Cache-Control"] = "public, max-age=3600"
+    response.set_etag(hashlib.sha256(body.encode("utf-8")).hexdigest()[:16])
+    return response.make_conditional(request)
 
 
-@pages.route("/unsubscribe/<token>", methods=["GET", "POST"])
-def unsubscribe(token: str):
-    return _token_page(token, "unsubscribe")
+@pages.app_template_global()
+def basin_url(wb_id: str, basin_id: str, run: dict | None = None) -> str:
+    if run is None:
+        return url_for("pages.basin", water_body_id=wb_id, basin_id=basin_id)
+    return url_for("pages.basin", water_body_id=wb_id, basin_id=basin_id, run=run["id"])

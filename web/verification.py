@@ -22,6 +22,27 @@ from web import verification_plots as plots
 
 verification = Blueprint("verification", __name__)
 
+#: The endpoint's description for the OpenAPI document (paths item).
+OPENAPI_PATH = {
+    "/api/v1/water-bodies/{water_body_id}/verification": {"get": {
+        "summary": "The forecast record: Bloomline's scores by lead day beside the baselines'",
+        "description": "Scores of every issued forecast against the readings that came later, by lead day, with "
+                       "CRPS skill against persistence, a persistence ensemble, climatology and an autoregression, "
+                       "the rank histogram and reliability per alert level. " + CAUTION,
+        "parameters": [
+            {"name": "water_body_id", "in": "path", "required": True, "schema": {"type": "string"}},
+            {"name": "since", "in": "query", "required": False, "schema": {"type": "string", "format": "date"},
+             "description": "only days verified on or after this date (YYYY-MM-DD)"},
+            {"name": "format", "in": "query", "required": False, "schema": {"enum": ["json", "csv"]}},
+        ],
+        "responses": {
+            "200": {"description": "the record", "content": {"application/json": {"schema": {"type": "object"}},
+                                                               "text/csv": {"schema": {"type": "string"}}}},
+            "400": {"description": "a parameter out of range (the message says which)"},
+            "404": {"description": "no such water body"},
+        }}},
+}
+
 #: Days of the record shown by default (the page and the API accept ``since``).
 DEFAULT_DAYS = 365
 HISTORY_DAYS = 60

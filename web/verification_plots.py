@@ -10,13 +10,15 @@ matplotlib.use("Agg")
 
 from matplotlib.figure import Figure  # noqa: E402
 
-from web.plots import FORECAST, HISTORY, OBSERVED  # noqa: E402
+from web.palette import ANALYSIS as HISTORY  # noqa: E402
+from web.palette import BLUISH_GREEN, FORECAST, OBSERVED, ORANGE, REDDISH_PURPLE  # noqa: E402
 
 #: One colour per forecaster (Okabe & Ito 2008 palette; Bloomline as on the forecast charts).
-FORECASTER_COLOURS = {"bloomline": FORECAST, "persistence": "#999999", "persistence_ensemble": "#009E73",
-                      "climatology": "#E69F00", "statistical": "#CC79A7"}
-FORECASTER_NAMES = {"bloomline": "Bloomline", "persistence": "persistence", "persistence_ensemble":
-                    "persistence ensemble", "climatology": "climatology", "statistical": "autoregression"}
+FORECASTER_COLOURS = {"bloomline": FORECAST, "process_model": HISTORY, "persistence": "#999999",
+                      "persistence_ensemble": BLUISH_GREEN, "climatology": ORANGE, "statistical": REDDISH_PURPLE}
+FORECASTER_NAMES = {"bloomline": "Bloomline (published)", "process_model": "process model alone",
+                    "persistence": "persistence", "persistence_ensemble": "persistence ensemble",
+                    "climatology": "climatology", "statistical": "autoregression"}
 
 
 def _png(fig: Figure) -> bytes:

@@ -44,10 +44,10 @@ EXTENSION = "bloomline_whatif"
 
 #: The endpoint's description for the OpenAPI document (paths item).
 OPENAPI_PATH = {
-    "/api/v1/water-bodies/{id}/what-if": {"post": {
+    "/api/v1/water-bodies/{water_body_id}/what-if": {"post": {
         "summary": "What-if scenario: today's analysis run with and without operator actions",
         "description": SCENARIO_NOTICE + " " + MODEL_NOTE,
-        "parameters": [{"name": "id", "in": "path", "required": True, "schema": {"type": "string"}}],
+        "parameters": [{"name": "water_body_id", "in": "path", "required": True, "schema": {"type": "string"}}],
         "requestBody": {"required": True, "content": {"application/json": {"schema": {
             "type": "object", "required": ["actions"], "additionalProperties": False,
             "properties": {

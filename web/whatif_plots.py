@@ -17,9 +17,11 @@ matplotlib.use("Agg")
 from matplotlib import dates as mdates  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 
-from web.plots import FORECAST, FORMATS, LEVEL_COLOURS  # noqa: E402
+from web.palette import BLUISH_GREEN, FORECAST  # noqa: E402
+from web.palette import LEVELS as LEVEL_COLOURS  # noqa: E402
+from web.plots import FORMATS  # noqa: E402
 
-SCENARIO = "#009E73"   # bluish green (Okabe & Ito 2008)
+SCENARIO = BLUISH_GREEN   # Okabe & Ito (2008) palette, as the other charts
 ACTION = "#999999"
 
 

@@ -101,13 +101,14 @@ def send(config_path: str) -> None:
 def serve(config_path: str, host: str | None, port: int | None) -> None:
     """Serve the status page, API and subscription forms."""
     from web import create_app
+    from web.serving import serve as serve_app
 
     cfg = _load(config_path)
     app = create_app(cfg)
     host = host or cfg.service.host
     port = port or cfg.service.port
     click.echo(f"Bloomline status page: http://{host}:{port}/")
-    app.run(host=host, port=port)
+    serve_app(app, host, port)
 
 
 @main.command()
@@ -137,10 +138,13 @@ def demo(workdir: str, serve_: bool, as_json: bool, port: int, feeds: str | None
         click.echo(json.dumps(summary, default=str))
     if serve_:
         from web import create_app
+        from web.serving import serve as serve_app
 
-        app = create_app(cfg)
+        # the pages show the season as it stood at its end (the simulated clock), not as a stale past
+        season_end = parse_utc(summary["season"]["last_analysis_utc"]) + dt.timedelta(hours=1)
+        app = create_app(cfg, clock=lambda: season_end)
         click.echo(f"Bloomline status page: http://127.0.0.1:{port}/  (Ctrl+C to stop)", err=as_json)
-        app.run(host="127.0.0.1", port=port)
+        serve_app(app, "127.0.0.1", port)
 
 
 main.add_command(ingest)

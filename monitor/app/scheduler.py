@@ -66,10 +66,10 @@ def run_service(config: Config, *, with_web: bool = True) -> None:
     service = Service(config)
     if with_web:
         from web import create_app
+        from web.serving import serve
 
         app = create_app(config)
-        thread = threading.Thread(target=lambda: app.run(host=config.service.host, port=config.service.port,
-                                                         use_reloader=False), daemon=True)
+        thread = threading.Thread(target=lambda: serve(app, config.service.host, config.service.port), daemon=True)
         thread.start()
         log.info("status page on http://%s:%d/", config.service.host, config.service.port)
     scheduler = build_scheduler(service)

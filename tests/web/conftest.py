@@ -138,3 +138,18 @@ def client(app):
 def analysis_utc():
     """Analysis time of the latest seeded run."""
     return ANALYSIS
+
+
+def csrf_token(client, url: str = "/subscribe") -> str:
+    """The CSRF token of the form on the page at ``url`` (the session cookie stays in ``client``)."""
+    import re
+
+    html = client.get(url).get_data(as_text=True)
+    match = re.search(r'name="csrf_token" value="([^"]+)"', html)
+    assert match, f"no CSRF token in the form at {url}"
+    return match.group(1)
+
+
+def post_form(client, url: str, data: dict, *, form_page: str | None = None, **kwargs):
+    """POST ``data`` to ``url`` as a browser would: with the token of the form on ``form_page`` (default ``url``)."""
+    return client.post(url, data={**data, "csrf_token": csrf_token(client, form_page or url)}, **kwargs)

@@ -30,10 +30,12 @@ def test_status_carries_the_caution_and_max_probability_per_level(client):
     basins = {b["id"]: b for b in body["water_bodies"][0]["basins"]}
     assert basins["west"]["p_max_within_horizon"] == {"1": 0.8, "2": 0.02}
     assert basins["west"]["level"] == 0 and basins["west"]["level_name"] == NO_LEVEL == "no alert level forecast"
-    # observed: mean of the QC-passed readings of the last UTC day (readings 168..191 of the seeded
-    # series 6.0 + 0.01·i fall on 10 August); the failed spike (QC flag 4) in that day is left out
-    assert basins["west"]["observed"]["day"] == "2026-08-10T00:00:00Z"
-    assert basins["west"]["observed"]["mean_ugL"] == pytest.approx(6.0 + 0.01 * (168 + 191) / 2)
+    # observed: mean of the QC-passed readings of the last local day of the lake (UTC+2): 10 August
+    # starts at 9 August 22:00 UTC, 40 h after the seeded series 6.0 + 0.01·i begins, so readings
+    # 160..191 fall on it; the failed spike (QC flag 4) in that day is left out
+    assert basins["west"]["observed"]["day"] == "2026-08-10"
+    assert basins["west"]["observed"]["day_start_utc"] == "2026-08-09T22:00:00Z"
+    assert basins["west"]["observed"]["mean_ugL"] == pytest.approx(6.0 + 0.01 * (160 + 191) / 2)
 
 
 def test_latest_forecast_json_has_every_day_and_statistic(client, analysis_utc):
@@ -125,6 +127,6 @@ def test_no_forecast_yet_is_a_json_404_and_the_page_says_so(config, engine):
 
 
 def test_the_app_serves_the_push_endpoint(client):
-    # the push blueprint answers (its own 404 wording), not the app's generic not-found
+    # the push blueprint answers (its own wording), not the app's generic not-found
     r = client.post("/api/v1/push/nope", json=[], headers={"Authorization": "Bearer x"})
-    assert r.status_code == 404 and r.get_json()["error"]["message"] == "no push feed named 'nope'"
+    assert r.status_code == 401 and "missing or wrong token" in r.get_json()["error"]["message"]

@@ -88,9 +88,13 @@ def test_token_is_compared_in_constant_time(monkeypatch, push_client):
     assert calls == [(b"nope", TOKEN.encode())]
 
 
-def test_unknown_feed_is_404_and_other_kinds_are_not_push_targets(push_client):
-    assert push_client.post("/api/v1/push/nope", json=RECORDS, headers=auth()).status_code == 404
-    assert push_client.post("/api/v1/push/buoys", json=RECORDS, headers=auth()).status_code == 404
+def test_unknown_feed_and_other_kinds_answer_like_a_wrong_token(push_client):
+    # feed names cannot be discovered: an unknown feed, a feed of another kind and a wrong token look alike
+    wrong = push_client.post(URL, json=RECORDS, headers=auth("wrong"))
+    for url in ("/api/v1/push/nope", "/api/v1/push/buoys"):
+        r = push_client.post(url, json=RECORDS, headers=auth())
+        assert (r.status_code, r.get_json(), r.headers.get("WWW-Authenticate")) == \
+            (401, wrong.get_json(), wrong.headers["WWW-Authenticate"])
 
 
 def test_every_row_rejected_is_422(push_client):
@@ -135,3 +139,35 @@ def test_pushed_payload_is_archived_as_json(push_client, push_app):
     engine = push_app.extensions["bloomline"]["engine"]
     archive = Path(batches_frame(engine)["archive_path"].iloc[0])
     assert archive.suffix == ".json" and archive.read_bytes() == body
+
+
+def test_the_answer_names_row_station_column_and_reason_of_each_rejection(push_client):
+    csv = (b"time,station,variable,value,unit\n"
+           b"2026-07-01T01:00:00Z,FW-1,water_temperature,20.0,degC\n"
+           b"2026-07-01T01:15:00Z,FW-1,water_temperature,warm,degC\n"
+           b"yesterday,FW-1,water_temperature,20.1,degC\n"
+           b"2026-07-01T01:30:00Z,FW-9,water_temperature,20.2,degC\n"
+           b"2026-07-01T01:45:00Z,FW-1,water_temperature,20.3,kelvinish\n")
+    body = push_client.post(URL, data=csv, content_type="text/csv", headers=auth()).get_json()
+    assert (body["accepted"], body["rejected"]) == (1, 4)
+    got = {r["row"]: (r["station"], r["column"]) for r in body["rejections"]}
+    # rows count the CSV's lines, the header being line 1
+    assert got == {3: ("FW-1", "value"), 4: ("FW-1", "time"), 5: ("FW-9", "station"), 6: ("FW-1", "unit")}
+    reasons = {r["row"]: r["reason"] for r in body["rejections"]}
+    assert "'warm' is not a finite decimal number" in reasons[3] and "unknown station 'FW-9'" in reasons[5]
+    assert body["caution"]
+
+
+def test_json_rejections_are_numbered_by_record(push_client):
+    body = push_client.post(URL, json={"readings": RECORDS}, headers=auth()).get_json()
+    (r,) = body["rejections"]
+    assert (r["row"], r["station"], r["column"]) == (3, "FW-1", "value")
+
+
+def test_at_most_a_hundred_rejections_are_described(push_client):
+    from web.push_report import MAX_REPORTED
+
+    bad = [{**RECORDS[0], "time": f"2026-07-01T{h % 24:02d}:{m:02d}:00Z", "value": "x"}
+           for h in range(3) for m in range(60)]
+    body = push_client.post(URL, json=bad, headers=auth()).get_json()
+    assert body["rejected"] == 180 and len(body["rejections"]) == MAX_REPORTED == 100
