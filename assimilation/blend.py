@@ -2,12 +2,14 @@
 
 For each lead day the blend's predictive distribution is built in three steps:
 
-1. **Quantile averaging** (Vincentization; Ratcliff 1979, Psychol. Bull.
-   86:446; for forecasts, Lichtendahl, Grushka-Cockayne & Winkler 2013,
-   Manage. Sci. 59:1594): the blend's quantile at level p is the weighted
-   mean, in natural-log space, of the components' quantiles at p, with
+1. **Linear pool** (a weighted mixture of the components' distributions, as
+   in Bayesian model averaging; Raftery, Gneiting, Balabdaoui & Polakowski
+   2005, Mon. Wea. Rev. 133:1155): the blend's distribution function is the
+   weighted sum of the components' empirical distribution functions, with
    weights from each component's verified record (the caller's choice;
-   :func:`inverse_crps_weights` gives the default).
+   :func:`inverse_crps_weights` gives the default), read at the members'
+   plotting positions. A mixture keeps each component's tails, so an event
+   one component foresees keeps its share of probability.
 2. **Calibration** in log space, after the moment form of non-homogeneous
    Gaussian regression (EMOS; Gneiting, Raftery, Westveld & Goldman 2005,
    Mon. Wea. Rev. 133:1098): the blend's mean log error on its record is
@@ -50,22 +52,30 @@ def plotting_positions(m: int) -> np.ndarray:
     return (np.arange(1, m + 1) - 0.5) / m
 
 
-def vincentize(log_members: dict[str, np.ndarray], weights: dict[str, float], m: int) -> np.ndarray:
-    """Weighted mean of the components' log quantiles at the ``m`` plotting positions (m,).
+def linear_pool(log_members: dict[str, np.ndarray], weights: dict[str, float], m: int) -> np.ndarray:
+    """The weighted mixture of the components' members (log) read at the ``m`` plotting positions (m,).
 
-    Quantiles by Hazen's definition, so a component of m members contributes exactly its
-    order statistics.
+    Each member of component c carries weight w_c / M_c; the mixture's quantile
+    at p is read from the weighted empirical distribution function (members at
+    their Hazen positions within their component, so one component of m
+    members gives back exactly its order statistics).
     """
-    p = plotting_positions(m)
     total = sum(weights.get(c, 0.0) for c in log_members)
     if total <= 0:
         raise ValueError("the blend needs a positive weight on at least one component it is given")
-    out = np.zeros(m)
+    values, cdf_weights = [], []
     for name, z in log_members.items():
         w = weights.get(name, 0.0) / total
         if w > 0:
-            out += w * np.quantile(np.asarray(z, dtype=float), p, method="hazen")
-    return out
+            z = np.sort(np.asarray(z, dtype=float))
+            values.append(z)
+            cdf_weights.append(np.full(z.size, w / z.size))
+    v = np.concatenate(values)
+    w = np.concatenate(cdf_weights)
+    order = np.argsort(v, kind="stable")
+    v, w = v[order], w[order]
+    positions = np.cumsum(w) - 0.5 * w          # Hazen positions of the weighted members
+    return np.interp(plotting_positions(m), positions, v)
 
 
 def calibrate(z: np.ndarray, bias_ln: float, spread_factor: float) -> np.ndarray:
@@ -86,7 +96,7 @@ def ecc_order(values: np.ndarray, template: np.ndarray) -> np.ndarray:
 
 def blend(components: dict[str, np.ndarray], process: str, settings: list[LeadSettings],
           floor_ugL: float = LOG_FLOOR_UGL) -> tuple[np.ndarray, np.ndarray]:
-    """The blended members and the uncalibrated quantile average, both (K + 1, M) [µg/L].
+    """The blended members and the uncalibrated pool, both (K + 1, M) [µg/L].
 
     ``components`` maps a forecaster to its member daily means (K + 1, M_c);
     ``process`` names the process-model ensemble, whose members give the
@@ -108,7 +118,7 @@ def blend(components: dict[str, np.ndarray], process: str, settings: list[LeadSe
         if process not in logs:
             raise ValueError(f"the process ensemble {process!r} has no finite members at lead {k}")
         weights = {c: w for c, w in s.weights.items() if c in logs} or {process: 1.0}
-        z = vincentize(logs, weights, M)
+        z = linear_pool(logs, weights, M)
         raw[k] = np.exp(ecc_order(z, logs[process]))
         out[k] = np.exp(ecc_order(calibrate(z, s.bias_ln, s.spread_factor), logs[process]))
     return out, raw

@@ -19,14 +19,14 @@ def test_a_process_only_blend_without_correction_returns_the_process_members_in_
     np.testing.assert_allclose(raw, process, rtol=1e-12)
 
 
-def test_quantile_average_of_two_normals_is_the_normal_with_the_averaged_mean_and_sd():
-    # Vincentization of normals: the weighted mean of quantile functions is the normal quantile
-    # function with weighted mean and weighted sd (Ratcliff 1979; a property of location-scale families)
-    m = 2000
+def test_the_linear_pool_of_two_normals_has_the_mixture_distribution():
+    # a linear pool is the weighted mixture: F(x) = 0.25·Φ((x−1)/0.5) + 0.75·Φ((x−3)/1.5) (scipy.stats.norm)
+    m = 4000
     p = bl.plotting_positions(m)
     a, b = stats.norm.ppf(p, 1.0, 0.5), stats.norm.ppf(p, 3.0, 1.5)
-    z = bl.vincentize({"a": a, "b": b}, {"a": 0.25, "b": 0.75}, m)
-    np.testing.assert_allclose(z, stats.norm.ppf(p, 0.25 * 1.0 + 0.75 * 3.0, 0.25 * 0.5 + 0.75 * 1.5), atol=1e-9)
+    z = bl.linear_pool({"a": a, "b": b}, {"a": 0.25, "b": 0.75}, m)
+    mixture_cdf = 0.25 * stats.norm.cdf(z, 1.0, 0.5) + 0.75 * stats.norm.cdf(z, 3.0, 1.5)
+    np.testing.assert_allclose(mixture_cdf, p, atol=2e-3)
 
 
 def test_calibration_removes_the_bias_and_scales_the_spread_about_the_mean():
