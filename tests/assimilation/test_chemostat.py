@@ -35,7 +35,8 @@ def chemostat(groups, dilution_per_d, yield_chl_per_n=0.5, recycled=0.0, nitroge
         groups=tuple(groups), network=Network(downstream=(-1,), inflow_basin=(0,)),
         par_fraction=PAR_FRACTION, background_attenuation_per_m=K_BACKGROUND, chlorophyll_attenuation_m2_mg=0.0,
         nitrogen_to_chlorophyll=1.0 / yield_chl_per_n, phosphorus_to_chlorophyll=1.0, recycled_fraction=recycled,
-        denitrification_20_per_d=0.0)
+        denitrification_20_per_d=0.0, sediment_phosphorus_release_20_mg_m2_d=0.0,
+        detrital_fraction=0.0)  # a culture vessel: no sediment, and what dies leaves (no detritus)
     q = dilution_per_d * VOLUME / 86400.0
     t = np.array([T0, T0 + 2000.0])
     drivers = Drivers(time_d=t, water_temperature_C=np.full((2, 1), 20.0), shortwave_W_m2=np.full(2, SHORTWAVE),
