@@ -41,10 +41,10 @@ changes within an hour far more than the state does (sunrise, sunset).
 
 Accuracy: second order; at dt = 1 h the daily states of 60 summer days in
 a 3-basin reservoir agree with solve_ivp (LSODA, rtol 1e-8) to within
-max |Δ|/(|ref| + 0.1 µg/L) ≈ 0.03 without nitrogen fixers; with the default
+max |Δ|/(|ref| + 0.1 µg/L) ≤ 0.05 without nitrogen fixers; with the default
 (fixing) cyanobacteria the shallow arm's DIN turns over within an hour in
 daylight and SRP crashes at the bloom peak, and the hourly difference
-reaches 0.36 (0.13 at 30 min, 0.034 at 15 min)
+reaches 0.26 (0.22 at 30 min, 0.081 at 15 min, 0.023 at 7.5 min)
 (tests/assimilation/test_model_vs_solve_ivp.py).
 Steps far longer than the turnover time of a depleted nutrient (12–24 h in
 a chemostat with N ≪ K_N) stay positive and conservative but can oscillate
