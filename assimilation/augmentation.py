@@ -4,18 +4,22 @@ Augmented ensemble (columns of ``Checkpoint.ensemble``, physical units)::
 
     [model state (n_state, µg/L, basin-major, DEVELOPERS.md),
      mu_max_20_per_d:<group> (G, 1/d),   mortality_20_per_d:<group> (G, 1/d),
+     sediment_phosphorus_release_20_mg_m2_d:<basin> (B, mg P/m²/d),
      sensor_gain:<k> (n_sensors, -)]
 
-Parameter columns are present when parameters are estimated; sensor gains
-whenever there are sensors. The analysis works in log space for every
+Parameter columns are present when parameters are estimated (the sediment
+release columns only when every basin's release in the spec, the prior, is
+positive: :func:`estimates_sediment_release`); sensor gains whenever there
+are sensors. The analysis works in log space for every
 column (concentrations and positive parameters, :mod:`transform`), so all
 stay positive. State augmentation for parameters follows Anderson (2001,
 Mon. Wea. Rev. 129:2884) and Evensen (2009, Data Assimilation: the Ensemble
 Kalman Filter, 2nd ed., Springer, ch. 10); the spread of the parameters is
 kept above a floor to avoid collapse (Aksoy et al. 2006, Mon. Wea. Rev.
 134:2951) and each member's parameters within bounds about the spec's
-values. For localization, parameters are global and not localized; a sensor
-gain is localized like the state of the basin the sensor is in.
+values. For localization, group parameters are global and not localized; a basin's
+sediment release and a sensor gain are localized like the state of their
+basin.
 """
 from __future__ import annotations
 
@@ -26,28 +30,44 @@ import numpy as np
 
 from assimilation import inflation, localization
 from assimilation.checkpoint import Checkpoint
-from assimilation.model import PARAMETER_KEYS
+from assimilation.model import BASIN_PARAMETER_KEYS, PARAMETER_KEYS
 from assimilation.observe import Observations
 from assimilation.spec import ModelSpec, StateLayout
 
 GAIN_PREFIX = "sensor_gain"
 
 
+def estimates_sediment_release(spec: ModelSpec) -> bool:
+    """Whether an ensemble that estimates parameters also estimates each basin's
+    sediment phosphorus release: when every basin's release in the spec (the
+    prior, log space) is positive. A zero release means no internal loading."""
+    return bool(np.all(spec.sediment_release_by_basin() > 0))
+
+
 def augmented_names(spec: ModelSpec, *, estimate_parameters: bool, n_sensors: int) -> tuple[str, ...]:
     """Column names of the augmented ensemble: the state layout's names, then
     ``<parameter key>:<group name>`` when parameters are estimated, then
-    ``sensor_gain:<k>`` for k < n_sensors."""
+    ``<basin parameter key>:<basin name>`` when the sediment release is
+    estimated too, then ``sensor_gain:<k>`` for k < n_sensors."""
     names = list(StateLayout(spec).names())
     if estimate_parameters:
         for key in PARAMETER_KEYS:
             names += [f"{key}:{g.name}" for g in spec.groups]
+        if estimates_sediment_release(spec):
+            for key in BASIN_PARAMETER_KEYS:
+                names += [f"{key}:{b.name}" for b in spec.basins]
     names += [f"{GAIN_PREFIX}:{k}" for k in range(n_sensors)]
     return tuple(names)
 
 
 def spec_parameters(spec: ModelSpec) -> np.ndarray:
-    """Spec values of the augmented group parameters, (len(PARAMETER_KEYS) * G,) [1/d]."""
-    return np.array([getattr(g, key) for key in PARAMETER_KEYS for g in spec.groups], dtype=float)
+    """Spec values of the augmented parameters: group parameters
+    (len(PARAMETER_KEYS) * G,) [1/d], then each basin's sediment release
+    (B,) [mg P/m²/d] when it is estimated."""
+    theta = [getattr(g, key) for key in PARAMETER_KEYS for g in spec.groups]
+    if estimates_sediment_release(spec):
+        theta += list(spec.sediment_release_by_basin())
+    return np.array(theta, dtype=float)
 
 
 @dataclass(frozen=True, eq=False)
@@ -79,29 +99,48 @@ def columns(spec: ModelSpec, names: tuple[str, ...]) -> Columns:
     ValueError when the names do not fit the spec."""
     layout = StateLayout(spec)
     n_state = layout.n_state
-    G = spec.n_groups
-    n_param = sum(1 for n in names if n.split(":")[0] in PARAMETER_KEYS)
+    _refuse_old_layout(names, spec)
+    n_param = sum(1 for n in names if n.split(":")[0] in PARAMETER_KEYS + BASIN_PARAMETER_KEYS)
     n_gain = sum(1 for n in names if n.startswith(GAIN_PREFIX + ":"))
-    if n_state + n_param + n_gain != len(names) or n_param not in (0, len(PARAMETER_KEYS) * G):
+    expected = augmented_names(spec, estimate_parameters=n_param > 0, n_sensors=n_gain)
+    if n_state + n_param + n_gain != len(names) or tuple(names[n_state:]) != expected[n_state:]:
         raise ValueError(f"checkpoint columns {len(names)} do not fit the spec "
-                         f"({n_state} state, {n_param} parameters, {n_gain} gains)")
+                         f"({n_state} state, {n_param} parameters, {n_gain} gains; expected "
+                         f"{len(expected) - n_state - n_gain} parameters)")
     if tuple(names[:n_state]) != tuple(layout.names()):
         raise ValueError("checkpoint state columns do not match the spec's state layout")
     return Columns(layout, slice(0, n_state), slice(n_state, n_state + n_param),
                    slice(n_state + n_param, len(names)))
 
 
+def _refuse_old_layout(names, spec: ModelSpec) -> None:
+    """ValueError with what to do when ``names`` begin with the state layout of
+    ``spec`` from before the detrital pools (per basin DIN, SRP and chlorophyll)."""
+    old = [name for b in spec.basins
+           for name in [f"{b.name}:nitrogen", f"{b.name}:phosphorus"] + [f"{b.name}:chl:{g.name}" for g in spec.groups]]
+    if tuple(names[:len(old)]) == tuple(old):
+        raise ValueError("the checkpoint holds the model state without detrital N and P pools (written before "
+                         "Bloomline's model had detritus); it cannot be resumed: remove this water body's stored "
+                         "checkpoints so that the next cycle starts from a first guess")
+
+
 def parameter_dict(theta: np.ndarray, n_groups: int) -> dict[str, np.ndarray]:
-    """The parameter columns ``theta`` (M, len(PARAMETER_KEYS) * G) [1/d] as the
-    ``params`` dict of ``integrate.advance``: keys PARAMETER_KEYS, views (M, G)."""
+    """The parameter columns ``theta`` (M, len(PARAMETER_KEYS) * G [+ B]) as the
+    ``params`` dict of ``integrate.advance``: keys PARAMETER_KEYS, views (M, G)
+    [1/d], and, when theta holds more columns, the basins' sediment release
+    (BASIN_PARAMETER_KEYS, view (M, B) [mg P/m²/d])."""
     G = n_groups
-    return {key: theta[:, i * G:(i + 1) * G] for i, key in enumerate(PARAMETER_KEYS)}
+    out = {key: theta[:, i * G:(i + 1) * G] for i, key in enumerate(PARAMETER_KEYS)}
+    if theta.shape[1] > len(PARAMETER_KEYS) * G:
+        (key,) = BASIN_PARAMETER_KEYS
+        out[key] = theta[:, len(PARAMETER_KEYS) * G:]
+    return out
 
 
 def split(checkpoint: Checkpoint, spec: ModelSpec) -> tuple[np.ndarray, dict[str, np.ndarray], np.ndarray]:
     """Model states (M, n_state) [µg/L], params dict for ``integrate.advance``
-    (keys PARAMETER_KEYS, arrays (M, G) [1/d]; empty when parameters are not
-    estimated) and sensor gains (M, n_sensors) [-], all copies."""
+    (:func:`parameter_dict`; empty when parameters are not estimated) and
+    sensor gains (M, n_sensors) [-], all copies."""
     cols = columns(spec, checkpoint.names)
     E = checkpoint.ensemble
     params = {}
@@ -151,8 +190,9 @@ def localization_weights(spec: ModelSpec, cols: Columns, obs: Observations, half
     half_width_hops [hops] along the flow network (Gaspari and Cohn 1999,
     :mod:`localization`); 0 or inf switches localization off. Returns
     (rho (n_aug, p), rho_obs (p, p)), or (None, None) when off. State columns
-    take the weight of their basin, parameters 1, a sensor gain the weight
-    of the basin of that sensor's readings.
+    and a basin's sediment release take the weight of their basin, group
+    parameters 1, a sensor gain the weight of the basin of that sensor's
+    readings.
     """
     c = half_width_hops
     if c == 0 or math.isinf(c):
@@ -160,7 +200,9 @@ def localization_weights(spec: ModelSpec, cols: Columns, obs: Observations, half
     hops = localization.network_hops(spec.network.downstream)
     rho_basin = localization.gaspari_cohn(hops, c)                 # (B, B)
     state_basin = np.repeat(np.arange(spec.n_basins), cols.layout.n_per_basin)
-    rows = [rho_basin[state_basin][:, obs.basin], np.ones((cols.n_parameters, len(obs)))]
+    n_basin_params = cols.n_parameters - len(PARAMETER_KEYS) * spec.n_groups if cols.n_parameters else 0
+    rows = [rho_basin[state_basin][:, obs.basin], np.ones((cols.n_parameters - n_basin_params, len(obs))),
+            rho_basin[np.arange(n_basin_params) % spec.n_basins][:, obs.basin]]
     gain_rows = np.zeros((cols.n_gains, len(obs)))
     for k in range(cols.n_gains):  # loop over sensors (a few), not members
         own = np.nonzero(obs.sensor == k)[0]

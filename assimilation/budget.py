@@ -1,9 +1,10 @@
 """Quantities derived from the model state: nutrient totals, the network's
 nitrogen and phosphorus budget, and the Secchi depth.
 
-Total nitrogen and phosphorus count the dissolved nutrient and the nutrient
-bound in algae (chlorophyll-a times the spec's nutrient-to-chlorophyll
-ratio). The budget (:func:`mass_fluxes`) reuses the model's own process
+Total nitrogen and phosphorus count the dissolved inorganic nutrient, the
+detrital (organic) nutrient and the nutrient bound in algae (chlorophyll-a
+times the spec's nutrient-to-chlorophyll ratio), as a lab's total N or total
+P after digestion does. The budget (:func:`mass_fluxes`) reuses the model's own process
 fluxes (:func:`model.process_fluxes`), so it accounts for exactly the
 processes the tendency integrates; its ``net`` equals d(total_mass)/dt
 (checked in tests/assimilation/test_mass_balance.py).
@@ -14,21 +15,23 @@ import numpy as np
 
 from assimilation import hydraulics, light, model
 from assimilation.forcing import Forcing, check_members
-from assimilation.spec import ModelSpec, StateLayout
+from assimilation.spec import NUTRIENT_SLOTS, ModelSpec, StateLayout
 
 KG_PER_MG = 1e-6
 
 
 def total_nitrogen(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
-    """Total nitrogen (DIN + algal N) per basin [µg N/L], (..., B)."""
+    """Total nitrogen (DIN + detrital N + algal N) per basin [µg N/L], (..., B)."""
     layout = StateLayout(spec)
-    return layout.nitrogen(E) + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(E)
+    return (layout.nitrogen(E) + layout.detrital_nitrogen(E)
+            + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(E))
 
 
 def total_phosphorus(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
-    """Total phosphorus (SRP + algal P) per basin [µg P/L], (..., B)."""
+    """Total phosphorus (SRP + detrital P + algal P) per basin [µg P/L], (..., B)."""
     layout = StateLayout(spec)
-    return layout.phosphorus(E) + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(E)
+    return (layout.phosphorus(E) + layout.detrital_phosphorus(E)
+            + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(E))
 
 
 def secchi_depth(E: np.ndarray, spec: ModelSpec) -> np.ndarray:
@@ -59,13 +62,16 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
     """Mass fluxes of the network budget [kg/d], each (M, 2) for (N, P).
 
     Keys: ``inflow`` (external loads), ``outflow`` (leaving the system),
-    ``settling``, ``mortality_loss`` (the non-recycled part),
+    ``settling`` (of algae), ``detritus_settling``, ``mortality_loss`` (the
+    part of mortality neither recycled nor turned into detritus),
     ``denitrification`` (N only), ``fixation`` (N only, N2 fixed by
     nitrogen-fixing groups), ``sediment_release`` (P only) and ``net`` =
-    inflow − outflow − settling − mortality_loss − denitrification +
-    fixation + sediment_release, which equals d(total_mass)/dt. E (M,
-    n_state) [µg/L]; forcing at one time (leading axis of length 1); params
-    as in :func:`model.coefficients`.
+    inflow − outflow − settling − detritus_settling − mortality_loss −
+    denitrification + fixation + sediment_release, which equals
+    d(total_mass)/dt. Remineralisation and detritus formation move nutrient
+    within the total and are not budget terms. E (M, n_state) [µg/L];
+    forcing at one time (leading axis of length 1); params as in
+    :func:`model.coefficients`.
     """
     layout = StateLayout(spec)
     E = np.asarray(E, dtype=float)
@@ -76,23 +82,25 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
     T, par = forcing.water_temperature_C[0], forcing.par_W_m2[0]
     q, c_in = forcing.inflow_m3_s[0], forcing.inflow_concentration_ugL[0]
     stoich = np.array([co.n_to_chl, co.p_to_chl])
+    S = NUTRIENT_SLOTS
     f = model.process_fluxes(C, co, T, par)                                   # [µg/L/d]
 
-    def totals(conc_nutrient, chlorophyll_sum):
-        return conc_nutrient + stoich * chlorophyll_sum[..., None]
+    def totals(conc):
+        """(N, P) totals of concentrations (..., 4 + G): dissolved + detrital + algal [µg/L]."""
+        return conc[..., :2] + conc[..., 2:S] + stoich * conc[..., S:].sum(axis=-1)[..., None]
 
     spd = hydraulics.SECONDS_PER_DAY
-    inflow_tot = totals(c_in[:, :2], c_in[:, 2:].sum(axis=-1))               # (I, 2) µg/L
-    inflow = np.broadcast_to((q[:, None] * inflow_tot).sum(axis=0) * spd, (M, 2))
+    inflow = np.broadcast_to((q[:, None] * totals(c_in)).sum(axis=0) * spd, (M, 2))
     Q = hydraulics.basin_outflows(spec.network, q) * spd                     # (B,) m³/d
     leaves = np.array([d == -1 for d in spec.network.downstream], dtype=float)
-    basin_tot = totals(C[..., :2], C[..., 2:].sum(axis=-1))                   # (M, B, 2)
-    outflow = ((Q * leaves)[:, None] * basin_tot).sum(axis=-2)
+    outflow = ((Q * leaves)[:, None] * totals(C)).sum(axis=-2)
     V = co.volume_m3[:, None]
     settling = stoich * (f.settling.sum(axis=-1)[..., None] * V).sum(axis=-2)
-    mortality_loss = stoich * (1.0 - co.recycled) * (f.mortality.sum(axis=-1)[..., None] * V).sum(axis=-2)
+    detritus_settling = (f.detritus_settling * V).sum(axis=-2)
+    lost = (1.0 - co.detrital_fraction) * (1.0 - co.recycled)
+    mortality_loss = stoich * lost * (f.mortality.sum(axis=-1)[..., None] * V).sum(axis=-2)
     release = np.zeros((M, 2))
-    if co.sediment_release_20 > 0:
+    if co.any_release:
         release[:, 1] = (f.sediment_phosphorus * co.volume_m3).sum(axis=-1)
     denitrification = np.zeros((M, 2))
     if co.denitrification_20 > 0:
@@ -100,9 +108,10 @@ def mass_fluxes(E: np.ndarray, spec: ModelSpec, forcing: Forcing, params: dict |
     fixation = np.zeros((M, 2))
     if co.any_fixing:
         fixation[:, 0] = co.n_to_chl * (f.fixed_growth.sum(axis=-1) * co.volume_m3).sum(axis=-1)
-    out = {"inflow": inflow, "outflow": outflow, "settling": settling, "mortality_loss": mortality_loss,
-           "denitrification": denitrification, "fixation": fixation, "sediment_release": release}
+    out = {"inflow": inflow, "outflow": outflow, "settling": settling, "detritus_settling": detritus_settling,
+           "mortality_loss": mortality_loss, "denitrification": denitrification, "fixation": fixation,
+           "sediment_release": release}
     out = {k: np.asarray(v) * KG_PER_MG for k, v in out.items()}
-    out["net"] = (out["inflow"] - out["outflow"] - out["settling"] - out["mortality_loss"]
-                  - out["denitrification"] + out["fixation"] + out["sediment_release"])
+    out["net"] = (out["inflow"] - out["outflow"] - out["settling"] - out["detritus_settling"]
+                  - out["mortality_loss"] - out["denitrification"] + out["fixation"] + out["sediment_release"])
     return out

@@ -12,14 +12,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from assimilation.spec import Drivers, ModelSpec
+from assimilation.spec import NUTRIENT_SLOTS, Drivers, ModelSpec
 
 
 @dataclass(frozen=True, eq=False)
 class Forcing:
     """Drivers at K times: water_temperature_C (K, B) or (K, M, B) [°C], par_W_m2 (K, B)
     [W/m² PAR at the surface], inflow_m3_s (K, I) [m³/s] and
-    inflow_concentration_ugL (K, I, 2 + G) [µg/L] (N, P, chlorophyll per group)."""
+    inflow_concentration_ugL (K, I, 4 + G) [µg/L] (N, P, detrital N and P,
+    chlorophyll per group; the drivers carry no detritus, so inflows bring
+    none: organic nutrients of an inflow are not in its DIN and SRP)."""
 
     water_temperature_C: np.ndarray
     par_W_m2: np.ndarray
@@ -66,11 +68,11 @@ def forcing_at(drivers: Drivers, spec: ModelSpec, times_d) -> Forcing:
     if shortwave.ndim == 1:
         shortwave = np.repeat(shortwave[:, None], B, axis=1)
     inflow = _interpolate(t, drivers.inflow_m3_s, times)
-    conc = np.zeros((times.size, I, 2 + G))
+    conc = np.zeros((times.size, I, NUTRIENT_SLOTS + G))
     conc[..., 0] = _interpolate(t, drivers.inflow_nitrogen_ugL, times)
     conc[..., 1] = _interpolate(t, drivers.inflow_phosphorus_ugL, times)
     if drivers.inflow_chlorophyll_ugL is not None:
-        conc[..., 2:] = _interpolate(t, drivers.inflow_chlorophyll_ugL, times)
+        conc[..., NUTRIENT_SLOTS:] = _interpolate(t, drivers.inflow_chlorophyll_ugL, times)
     return Forcing(temperature, spec.par_fraction * shortwave, inflow, conc)
 
 

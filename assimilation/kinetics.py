@@ -106,6 +106,17 @@ def sediment_phosphorus_release(release_20, theta, temperature, depth):
     return release_20 * temperature_factor(theta, temperature) / depth
 
 
+def remineralisation_rate(rate_20, theta, temperature):
+    """Specific remineralisation rate of detrital (organic) N or P to DIN or SRP. [1/d]
+
+    rate_20 [1/d] at 20 °C, theta [-], temperature [°C]: first-order decay
+    of the organic pool with Arrhenius temperature dependence (organic N
+    hydrolysis and organic P mineralisation, Chapra 1997 [3], ch. 33;
+    rates compiled in Bowie et al. 1985 [4]).
+    """
+    return rate_20 * temperature_factor(theta, temperature)
+
+
 def denitrification_rate(rate_20, theta, temperature):
     """Specific denitrification rate of dissolved inorganic nitrogen. [1/d]
 

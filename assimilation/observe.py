@@ -9,7 +9,13 @@ of one basin's state (µg/L):
 ``chlorophyll_a``            sum over groups of chlorophyll-a (lab, extracted)
 ``nitrate``                  dissolved inorganic nitrogen N (lab)
 ``srp``                      soluble reactive phosphorus P (lab)
+``total_phosphorus``         SRP + detrital P + a_P · sum of chlorophyll-a (lab)
+``total_nitrogen``           DIN + detrital N + a_N · sum of chlorophyll-a (lab)
 =========================== =================================================
+
+a_N and a_P are the spec's nutrient-to-chlorophyll ratios (algal N and P by
+stoichiometry), so a total is the sum of the pools, as
+:func:`assimilation.budget.total_phosphorus` counts it.
 
 The gain is that of the in-situ sensor named by ``sensor`` (estimated by the
 filter, index into the sensor gains), or 1 when ``sensor`` is -1.
@@ -23,7 +29,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-OBSERVABLE_KINDS = ("chlorophyll_fluorescence", "phycocyanin", "chlorophyll_a", "nitrate", "srp")
+from assimilation.parameters import NITROGEN_TO_CHLOROPHYLL, PHOSPHORUS_TO_CHLOROPHYLL
+from assimilation.spec import NUTRIENT_SLOTS
+
+OBSERVABLE_KINDS = ("chlorophyll_fluorescence", "phycocyanin", "chlorophyll_a", "nitrate", "srp",
+                    "total_phosphorus", "total_nitrogen")
 
 #: Default fraction of the window mean taken as representativeness error
 #: (the window mean stands for the basin at one instant). [-] A choice of
@@ -138,34 +148,48 @@ def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
     )
 
 
-def operator_matrix(obs: Observations, n_basins: int, n_groups: int, cyanobacteria) -> np.ndarray:
+def operator_matrix(obs: Observations, n_basins: int, n_groups: int, cyanobacteria, *,
+                    nitrogen_to_chlorophyll: float = NITROGEN_TO_CHLOROPHYLL,
+                    phosphorus_to_chlorophyll: float = PHOSPHORUS_TO_CHLOROPHYLL) -> np.ndarray:
     """Linear part H (p, n_state) of the observation operators [-].
 
-    The state of one member is basin-major ``[N_b, P_b, A_b,0 … A_b,G-1]``
-    (DEVELOPERS.md, "The model state layout"). cyanobacteria: (G,) booleans
-    marking the groups a phycocyanin sensor sees. The sensor gain is applied
-    by :func:`predict`.
+    The state of one member is basin-major ``[N_b, P_b, DN_b, DP_b, A_b,0 …
+    A_b,G-1]`` (DEVELOPERS.md, "The model state layout"). cyanobacteria:
+    (G,) booleans marking the groups a phycocyanin sensor sees.
+    nitrogen_to_chlorophyll [µg N/µg chl] and phosphorus_to_chlorophyll
+    [µg P/µg chl]: the spec's stoichiometry, for total N and total P
+    (default: Bloomline's default spec). The sensor gain is applied by
+    :func:`predict`.
     """
     cyano = np.asarray(cyanobacteria, dtype=bool).ravel()
     if cyano.size != n_groups:
         raise ValueError(f"cyanobacteria mask has {cyano.size} entries, expected {n_groups} groups")
     if np.any(obs.basin >= n_basins):
         raise ValueError(f"observation basin index out of range (model has {n_basins} basins)")
-    stride = 2 + n_groups
+    stride = NUTRIENT_SLOTS + n_groups
     p = len(obs)
     H = np.zeros((p, n_basins * stride))
     rows = np.arange(p)
     base = obs.basin * stride
     is_n = obs.kind == "nitrate"
     is_p = obs.kind == "srp"
+    is_tn = obs.kind == "total_nitrogen"
+    is_tp = obs.kind == "total_phosphorus"
     H[rows[is_n], base[is_n]] = 1.0
     H[rows[is_p], base[is_p] + 1] = 1.0
+    H[rows[is_tn], base[is_tn]] = 1.0
+    H[rows[is_tn], base[is_tn] + 2] = 1.0
+    H[rows[is_tp], base[is_tp] + 1] = 1.0
+    H[rows[is_tp], base[is_tp] + 3] = 1.0
     all_chl = (obs.kind == "chlorophyll_fluorescence") | (obs.kind == "chlorophyll_a")
     is_pc = obs.kind == "phycocyanin"
     for g in range(n_groups):  # loop over phytoplankton groups (a few), not members
-        H[rows[all_chl], base[all_chl] + 2 + g] = 1.0
+        column = NUTRIENT_SLOTS + g
+        H[rows[all_chl], base[all_chl] + column] = 1.0
+        H[rows[is_tn], base[is_tn] + column] = nitrogen_to_chlorophyll
+        H[rows[is_tp], base[is_tp] + column] = phosphorus_to_chlorophyll
         if cyano[g]:
-            H[rows[is_pc], base[is_pc] + 2 + g] = 1.0
+            H[rows[is_pc], base[is_pc] + column] = 1.0
     return H
 
 

@@ -84,15 +84,39 @@ CHLOROPHYLL_ATTENUATION_M2_MG = 0.016
 #: Secchi depth × attenuation coefficient [-] (rule of thumb Kd ≈ 1.7 / SD).
 SECCHI_ATTENUATION_PRODUCT = 1.7
 
-# --- recycling and sediment -------------------------------------------------
+# --- recycling, detritus and sediment ---------------------------------------
 #: Fraction of mortality/respiration returned at once to dissolved N and P
-#: [-]; the rest leaves the water column (refractory detritus, burial).
-#: Mid-range of [2] (from memory).
+#: [-] (excretion and respiration); the rest becomes detritus (see
+#: DETRITAL_FRACTION). Mid-range of [2] (from memory).
 RECYCLED_FRACTION = 0.5
-#: Internal phosphorus release from the sediment at 20 °C [mg P / m² / d].
-#: Off by default: it is site-specific (0.1–10 mg/m²/d from oxic to anoxic
-#: sediments, from memory) and set per water body.
-SEDIMENT_PHOSPHORUS_RELEASE_20_MG_M2_D = 0.0
+#: Fraction of the non-recycled mortality that becomes detrital N and P [-];
+#: the rest leaves the water column at once. All of it: in the
+#: nutrient–phytoplankton–detritus scheme of [2] (ch. 33, organic N and P
+#: pools fed by algal death) the dead algae enter the organic pools and leave
+#: only by settling; a chemostat without detritus sets 0 (from memory).
+DETRITAL_FRACTION = 1.0
+#: Remineralisation of detrital (organic) nitrogen to DIN at 20 °C [1/d]:
+#: the organic-N mineralisation rate of the WASP eutrophication kinetics,
+#: 0.075 /d, within the 0.02–0.4 /d of organic-N hydrolysis compiled in
+#: [1] and [2] (from memory).
+NITROGEN_REMINERALISATION_20_PER_D = 0.075
+#: Remineralisation of detrital (organic) phosphorus to SRP at 20 °C [1/d]:
+#: the organic-P mineralisation rate of the WASP eutrophication kinetics,
+#: 0.22 /d, within the 0.01–0.7 /d compiled in [1] and [2] (from memory).
+PHOSPHORUS_REMINERALISATION_20_PER_D = 0.22
+#: Temperature coefficient of remineralisation [-]; 1.08 in [1], [2] and
+#: WASP (from memory).
+THETA_REMINERALISATION = 1.08
+#: Settling velocity of detritus [m/d], a loss to the sediment; particulate
+#: organic matter settles at 0.05–0.5 m/d in [1], [2]; low end, as fine
+#: detritus settles slower than living diatoms (from memory).
+DETRITUS_SETTLING_M_PER_D = 0.1
+#: Internal phosphorus release from the sediment at 20 °C [mg P / m² / d],
+#: per basin: the prior of the filter's estimate. Site-specific, 0.1–10
+#: mg/m²/d from oxic to anoxic sediments (from memory); 1 is a mid-range
+#: start on the log scale that the filter's estimate moves from. A water
+#: body or basin without internal loading sets 0 (then it is not estimated).
+SEDIMENT_PHOSPHORUS_RELEASE_20_MG_M2_D = 1.0
 #: Temperature coefficient of sediment phosphorus release [-] (from memory).
 THETA_SEDIMENT_RELEASE = 1.08
 

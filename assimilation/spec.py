@@ -6,11 +6,12 @@ brackets; defaults come from :mod:`assimilation.parameters`.
 
 State layout (one member, ``B`` basins, ``G`` groups), basin-major::
 
-    [N_0, P_0, A_0,0 … A_0,G-1, N_1, P_1, A_1,0 … A_B-1,G-1]   [µg/L]
+    [N_0, P_0, DN_0, DP_0, A_0,0 … A_0,G-1, N_1, P_1, DN_1, DP_1, A_1,0 … A_B-1,G-1]   [µg/L]
 
 N is dissolved inorganic nitrogen as N, P soluble reactive phosphorus as P,
-A_b,g chlorophyll-a of group g in basin b. An ensemble is ``(M, n_state)``,
-one member per row; :class:`StateLayout` gives every index.
+DN and DP detrital (organic, non-living) nitrogen and phosphorus, A_b,g
+chlorophyll-a of group g in basin b. An ensemble is ``(M, n_state)``, one
+member per row; :class:`StateLayout` gives every index.
 """
 from __future__ import annotations
 
@@ -20,6 +21,12 @@ import numpy as np
 
 from assimilation import parameters as _p
 
+#: Nutrient pools of each basin, in state order before the chlorophyll of the
+#: groups: DIN, SRP, detrital N, detrital P.
+NUTRIENT_POOLS = ("nitrogen", "phosphorus", "detrital_nitrogen", "detrital_phosphorus")
+#: Number of nutrient pools per basin (the chlorophyll of group g is at NUTRIENT_SLOTS + g).
+NUTRIENT_SLOTS = len(NUTRIENT_POOLS)
+
 
 @dataclass(frozen=True)
 class Basin:
@@ -27,18 +34,27 @@ class Basin:
 
     volume_m3 [m³], mean_depth_m [m] (also the mixed depth for light and the
     settling/sediment exchange depth), area_m2 [m²] surface area.
+    sediment_phosphorus_release_20_mg_m2_d [mg P/m²/d] at 20 °C: this
+    basin's internal loading (the prior of its estimate when the filter
+    estimates parameters); None takes the water body's value
+    (:attr:`ModelSpec.sediment_phosphorus_release_20_mg_m2_d`).
     """
 
     name: str
     volume_m3: float
     mean_depth_m: float
     area_m2: float
+    sediment_phosphorus_release_20_mg_m2_d: float | None = None
 
     def __post_init__(self):
         for key in ("volume_m3", "mean_depth_m", "area_m2"):
             value = getattr(self, key)
             if not (np.isfinite(value) and value > 0):
                 raise ValueError(f"Basin {self.name!r}: {key} must be a positive number, got {value!r}")
+        release = self.sediment_phosphorus_release_20_mg_m2_d
+        if release is not None and not (np.isfinite(release) and release >= 0):
+            raise ValueError(f"Basin {self.name!r}: sediment_phosphorus_release_20_mg_m2_d must be a non-negative "
+                             f"number or None, got {release!r}")
 
 
 @dataclass(frozen=True)
@@ -134,10 +150,17 @@ class ModelSpec:
     chlorophyll_attenuation_m2_mg [m²/mg]. Stoichiometry (Redfield by mass and
     a carbon:chlorophyll ratio): nitrogen_to_chlorophyll [µg N/µg chl],
     phosphorus_to_chlorophyll [µg P/µg chl]. recycled_fraction [-] of
-    mortality returned to N and P. Internal loading:
-    sediment_phosphorus_release_20_mg_m2_d [mg P/m²/d] at 20 °C with
-    theta_sediment_release [-]. Nitrogen loss: denitrification_20_per_d [1/d]
-    at 20 °C with theta_denitrification [-]. Defaults and sources in
+    mortality returned at once to N and P. Detritus: detrital_fraction [-]
+    of the rest that becomes detrital N and P (the remainder leaves the
+    water column at once; 0 means no detritus is formed, the chemostat
+    case), remineralised to DIN and SRP at nitrogen_remineralisation_20_per_d
+    and phosphorus_remineralisation_20_per_d [1/d] at 20 °C with
+    theta_remineralisation [-], settling at detritus_settling_m_per_d [m/d].
+    Internal loading: sediment_phosphorus_release_20_mg_m2_d [mg P/m²/d] at
+    20 °C, the water body's value for every basin that does not set its own
+    (:meth:`sediment_release_by_basin`), with theta_sediment_release [-].
+    Nitrogen loss: denitrification_20_per_d [1/d] at 20 °C with
+    theta_denitrification [-]. Defaults and sources in
     :mod:`assimilation.parameters`.
     """
 
@@ -150,6 +173,11 @@ class ModelSpec:
     nitrogen_to_chlorophyll: float = _p.NITROGEN_TO_CHLOROPHYLL
     phosphorus_to_chlorophyll: float = _p.PHOSPHORUS_TO_CHLOROPHYLL
     recycled_fraction: float = _p.RECYCLED_FRACTION
+    detrital_fraction: float = _p.DETRITAL_FRACTION
+    nitrogen_remineralisation_20_per_d: float = _p.NITROGEN_REMINERALISATION_20_PER_D
+    phosphorus_remineralisation_20_per_d: float = _p.PHOSPHORUS_REMINERALISATION_20_PER_D
+    theta_remineralisation: float = _p.THETA_REMINERALISATION
+    detritus_settling_m_per_d: float = _p.DETRITUS_SETTLING_M_PER_D
     sediment_phosphorus_release_20_mg_m2_d: float = _p.SEDIMENT_PHOSPHORUS_RELEASE_20_MG_M2_D
     theta_sediment_release: float = _p.THETA_SEDIMENT_RELEASE
     denitrification_20_per_d: float = _p.DENITRIFICATION_20_PER_D
@@ -169,14 +197,17 @@ class ModelSpec:
             names = [x.name for x in items]
             if len(set(names)) != len(names):
                 raise ValueError(f"{kind} names must be unique, got {names}")
-        if not 0.0 <= self.recycled_fraction <= 1.0:
-            raise ValueError(f"recycled_fraction must be in [0, 1], got {self.recycled_fraction}")
+        for key in ("recycled_fraction", "detrital_fraction"):
+            if not 0.0 <= getattr(self, key) <= 1.0:
+                raise ValueError(f"{key} must be in [0, 1], got {getattr(self, key)}")
         for key in ("par_fraction", "nitrogen_to_chlorophyll", "phosphorus_to_chlorophyll", "theta_sediment_release",
-                    "theta_denitrification"):
+                    "theta_denitrification", "theta_remineralisation"):
             if not getattr(self, key) > 0:
                 raise ValueError(f"{key} must be positive, got {getattr(self, key)}")
         for key in ("background_attenuation_per_m", "chlorophyll_attenuation_m2_mg",
-                    "sediment_phosphorus_release_20_mg_m2_d", "denitrification_20_per_d"):
+                    "sediment_phosphorus_release_20_mg_m2_d", "denitrification_20_per_d",
+                    "nitrogen_remineralisation_20_per_d", "phosphorus_remineralisation_20_per_d",
+                    "detritus_settling_m_per_d"):
             if not getattr(self, key) >= 0:
                 raise ValueError(f"{key} must be non-negative, got {getattr(self, key)}")
 
@@ -191,6 +222,13 @@ class ModelSpec:
     @property
     def n_inflows(self) -> int:
         return self.network.n_inflows
+
+    def sediment_release_by_basin(self) -> np.ndarray:
+        """Internal phosphorus loading at 20 °C of each basin, (B,) [mg P/m²/d]: the
+        basin's own value, else the water body's."""
+        water_body = self.sediment_phosphorus_release_20_mg_m2_d
+        return np.array([water_body if b.sediment_phosphorus_release_20_mg_m2_d is None
+                         else b.sediment_phosphorus_release_20_mg_m2_d for b in self.basins], dtype=float)
 
     @property
     def cyanobacteria_index(self) -> int | None:
@@ -297,7 +335,7 @@ class StateLayout:
     def __init__(self, spec: ModelSpec):
         self.n_basins = spec.n_basins
         self.n_groups = spec.n_groups
-        self.n_per_basin = 2 + spec.n_groups
+        self.n_per_basin = NUTRIENT_SLOTS + spec.n_groups
         self.n_state = self.n_basins * self.n_per_basin
         self._basin_names = [b.name for b in spec.basins]
         self._group_names = [g.name for g in spec.groups]
@@ -308,10 +346,16 @@ class StateLayout:
     def index_phosphorus(self, b: int) -> int:
         return self._basin(b) * self.n_per_basin + 1
 
+    def index_detrital_nitrogen(self, b: int) -> int:
+        return self._basin(b) * self.n_per_basin + 2
+
+    def index_detrital_phosphorus(self, b: int) -> int:
+        return self._basin(b) * self.n_per_basin + 3
+
     def index_chlorophyll(self, b: int, g: int) -> int:
         if not 0 <= g < self.n_groups:
             raise IndexError(f"group index must be in 0..{self.n_groups - 1}, got {g}")
-        return self._basin(b) * self.n_per_basin + 2 + g
+        return self._basin(b) * self.n_per_basin + NUTRIENT_SLOTS + g
 
     def _basin(self, b: int) -> int:
         if not 0 <= b < self.n_basins:
@@ -319,20 +363,31 @@ class StateLayout:
         return b
 
     def blocks(self, E: np.ndarray) -> np.ndarray:
-        """``(..., n_state)`` → ``(..., B, 2 + G)`` (a view where possible)."""
+        """``(..., n_state)`` → ``(..., B, 4 + G)`` (a view where possible)."""
         E = np.asarray(E)
         if E.shape[-1] < self.n_state:
             raise ValueError(f"state has {E.shape[-1]} columns, expected at least {self.n_state}")
         return E[..., : self.n_state].reshape(E.shape[:-1] + (self.n_basins, self.n_per_basin))
 
     def nitrogen(self, E: np.ndarray) -> np.ndarray:
+        """Dissolved inorganic nitrogen [µg N/L], ``(..., B)``."""
         return self.blocks(E)[..., 0]
 
     def phosphorus(self, E: np.ndarray) -> np.ndarray:
+        """Soluble reactive phosphorus [µg P/L], ``(..., B)``."""
         return self.blocks(E)[..., 1]
 
+    def detrital_nitrogen(self, E: np.ndarray) -> np.ndarray:
+        """Detrital (organic, non-living) nitrogen [µg N/L], ``(..., B)``."""
+        return self.blocks(E)[..., 2]
+
+    def detrital_phosphorus(self, E: np.ndarray) -> np.ndarray:
+        """Detrital (organic, non-living) phosphorus [µg P/L], ``(..., B)``."""
+        return self.blocks(E)[..., 3]
+
     def chlorophyll(self, E: np.ndarray) -> np.ndarray:
-        return self.blocks(E)[..., 2:]
+        """Chlorophyll-a per group [µg/L], ``(..., B, G)``."""
+        return self.blocks(E)[..., NUTRIENT_SLOTS:]
 
     def total_chlorophyll(self, E: np.ndarray) -> np.ndarray:
         """Sum of chlorophyll-a over the groups [µg/L], ``(..., B)``."""
@@ -341,18 +396,24 @@ class StateLayout:
     def names(self) -> list[str]:
         out = []
         for b in self._basin_names:
-            out += [f"{b}:nitrogen", f"{b}:phosphorus"] + [f"{b}:chl:{g}" for g in self._group_names]
+            out += [f"{b}:{pool}" for pool in NUTRIENT_POOLS] + [f"{b}:chl:{g}" for g in self._group_names]
         return out
 
-    def pack(self, nitrogen, phosphorus, chlorophyll) -> np.ndarray:
-        """Build ``(M, n_state)`` from nitrogen (M, B), phosphorus (M, B) and
-        chlorophyll (M, B, G) [µg/L]; arrays broadcast."""
+    def pack(self, nitrogen, phosphorus, chlorophyll, detrital_nitrogen=0.0, detrital_phosphorus=0.0) -> np.ndarray:
+        """Build ``(M, n_state)`` from nitrogen (M, B), phosphorus (M, B),
+        chlorophyll (M, B, G) and detrital nitrogen and phosphorus (M, B)
+        (zero when left out) [µg/L]; arrays broadcast."""
         N = np.asarray(nitrogen, dtype=float)
         P = np.asarray(phosphorus, dtype=float)
         A = np.asarray(chlorophyll, dtype=float)
-        lead = np.broadcast_shapes(N.shape[:-1], P.shape[:-1], A.shape[:-2])
+        DN = np.asarray(detrital_nitrogen, dtype=float)
+        DP = np.asarray(detrital_phosphorus, dtype=float)
+        lead = np.broadcast_shapes(N.shape[:-1], P.shape[:-1], A.shape[:-2],
+                                   DN.shape[:-1] if DN.ndim else (), DP.shape[:-1] if DP.ndim else ())
         blocks = np.empty(lead + (self.n_basins, self.n_per_basin))
         blocks[..., 0] = N
         blocks[..., 1] = P
-        blocks[..., 2:] = A
+        blocks[..., 2] = DN
+        blocks[..., 3] = DP
+        blocks[..., NUTRIENT_SLOTS:] = A
         return blocks.reshape(lead + (self.n_state,))

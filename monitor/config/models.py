@@ -218,6 +218,7 @@ DEFAULT_OBSERVATION_ERRORS = {
     "chlorophyll_a": ObservationErrorConfig(0.15, 0.3),
     "nitrate": ObservationErrorConfig(0.15, 10.0),
     "srp": ObservationErrorConfig(0.2, 1.0),
+    "total_phosphorus": ObservationErrorConfig(0.15, 2.0),
 }
 
 

@@ -25,7 +25,11 @@ from assimilation import filter_cycle
 from assimilation.augmentation import split
 from assimilation.checkpoint import Checkpoint
 from assimilation.filter_config import FilterConfig
-from assimilation.first_guess import DEFAULT_FIRST_GUESS
+from assimilation.first_guess import (
+    DEFAULT_FIRST_GUESS,
+    detrital_nitrogen_from_phosphorus,
+    detrital_phosphorus_from_total,
+)
 from assimilation.forcing import member_drivers
 from assimilation.forecast import QUANTILES, daily_statistics, simulate_with_model_error
 from assimilation.observe import OBSERVABLE_KINDS, Observations
@@ -120,7 +124,13 @@ def to_observations(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig) ->
 
 def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: ModelSpec,
                 at: dt.datetime) -> np.ndarray:
-    """A first-guess state from the most recent samples before ``at`` (defaults where none)."""
+    """A first-guess state from the most recent samples before ``at`` (defaults where none).
+
+    Each pool takes the median of its samples; detrital P is what a total-P
+    sample leaves after SRP and algal P (:func:`detrital_phosphorus_from_total`),
+    detrital N the same at the algae's N:P; without a total-P sample both keep
+    their defaults.
+    """
     layout = StateLayout(spec)
     B, G = spec.n_basins, spec.n_groups
     cyano = spec.cyanobacteria_index
@@ -131,6 +141,9 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
     P = np.full(B, DEFAULT_FIRST_GUESS.phosphorus_ugL)
     total = np.full(B, DEFAULT_FIRST_GUESS.other_chlorophyll_ugL + DEFAULT_FIRST_GUESS.cyanobacteria_chlorophyll_ugL)
     cy = np.full(B, DEFAULT_FIRST_GUESS.cyanobacteria_chlorophyll_ugL)
+    DP = np.full(B, DEFAULT_FIRST_GUESS.detrital_phosphorus_ugL)
+    DN = np.full(B, DEFAULT_FIRST_GUESS.detrital_nitrogen_ugL)
+    tp = np.full(B, np.nan)
     if not frame.empty:
         frame = frame.assign(basin=frame.station_id.map(basin_of))
         med = frame.groupby(["basin", "variable"]).value.median()
@@ -144,6 +157,11 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
                 total[b] = v
             elif variable == "phycocyanin":
                 cy[b] = v
+            elif variable == "total_phosphorus":
+                tp[b] = v
+    sampled = np.isfinite(tp)
+    DP[sampled] = detrital_phosphorus_from_total(tp[sampled], P[sampled], total[sampled], spec)
+    DN[sampled] = detrital_nitrogen_from_phosphorus(DP[sampled], spec)
     A = np.empty((B, G))
     others = [g for g in range(G) if g != cyano]
     if cyano is None:
@@ -151,7 +169,7 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
     else:
         A[:, cyano] = np.minimum(cy, 0.9 * total)
         A[:, others] = (np.maximum(total - A[:, cyano], 0.1) / max(len(others), 1))[:, None]
-    return layout.pack(N, P, A)
+    return layout.pack(N, P, A, DN, DP)
 
 
 def late_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,

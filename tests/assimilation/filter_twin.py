@@ -7,7 +7,7 @@ white Gaussian noise of a stated standard deviation.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -28,10 +28,13 @@ SENSOR_GAINS = (1.15, 0.9)  # true gains of the two fluorescence sensors
 TWIN_SETTINGS = dict(inflation=1.0, relaxation_to_prior_spread=0.0, model_error_log_sd_per_d=0.0)
 
 
-def spec():
+def spec(sediment_release_mg_m2_d=0.0):
+    """The twin's spec. No sediment release by default, so the filter estimates the group
+    parameters only (the estimate of the release has its own twin, test_sediment_release_estimate.py)."""
     basins = (Basin("reed_arm", 2.0e6, 3.0, 6.7e5), Basin("open_water", 5.0e6, 5.0, 1.0e6),
               Basin("dam_pool", 4.0e6, 8.0, 5.0e5))
-    return default_spec(basins, Network(downstream=(1, 2, -1), inflow_basin=(0,)))
+    s = default_spec(basins, Network(downstream=(1, 2, -1), inflow_basin=(0,)))
+    return replace(s, sediment_phosphorus_release_20_mg_m2_d=sediment_release_mg_m2_d)
 
 
 def drivers(days=120):
@@ -53,8 +56,8 @@ def true_parameters(s):
             "mortality_20_per_d": np.array([[g.mortality_20_per_d for g in s.groups]])}
 
 
-TRUE_INITIAL_STATE = np.tile([300.0, 25.0, 0.5, 0.3], 3)  # [N, P, A_green, A_cyano] µg/L per basin
-FIRST_GUESS = np.tile([250.0, 20.0, 0.8, 0.5], 3)
+TRUE_INITIAL_STATE = np.tile([300.0, 25.0, 40.0, 5.0, 0.5, 0.3], 3)  # [N, P, DN, DP, A_green, A_cyano] µg/L
+FIRST_GUESS = np.tile([250.0, 20.0, 30.0, 4.0, 0.8, 0.5], 3)
 
 
 @dataclass

@@ -52,3 +52,18 @@ def test_resumed_run_equals_uninterrupted_run(method):
     assert straight.equals(resumed)
     # and the random state moved on (the run did draw numbers)
     assert straight.rng_state != start.rng_state
+
+
+def test_checkpoint_from_before_the_detrital_pools_is_refused_with_what_to_do():
+    # a checkpoint whose state is [N, P, A_green, A_cyano] per basin (the layout before detritus):
+    # resuming it would misread every column, so the cycle refuses it and says how to recover
+    twin = make_twin(2, seed=9)
+    s = twin.spec
+    old_names = [n for b in s.basins for n in [f"{b.name}:nitrogen", f"{b.name}:phosphorus"]
+                 + [f"{b.name}:chl:{g.name}" for g in s.groups]]
+    old_names += [f"{key}:{g.name}" for key in ("mu_max_20_per_d", "mortality_20_per_d") for g in s.groups]
+    old = Checkpoint(T0_D, np.ones((4, len(old_names))), tuple(old_names), np.random.default_rng(1).bit_generator.state)
+    resumed = Checkpoint.from_bytes(old.to_bytes())
+    with pytest.raises(ValueError, match=r"without detrital N and P pools .* remove this water body's stored "
+                                         r"checkpoints so that the next cycle starts from a first guess"):
+        assimilate(resumed, twin.observations, s, twin.drivers, FilterConfig(members=4), T0_D + 1)

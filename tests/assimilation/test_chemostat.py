@@ -35,7 +35,8 @@ def chemostat(groups, dilution_per_d, yield_chl_per_n=0.5, recycled=0.0, nitroge
         groups=tuple(groups), network=Network(downstream=(-1,), inflow_basin=(0,)),
         par_fraction=PAR_FRACTION, background_attenuation_per_m=K_BACKGROUND, chlorophyll_attenuation_m2_mg=0.0,
         nitrogen_to_chlorophyll=1.0 / yield_chl_per_n, phosphorus_to_chlorophyll=1.0, recycled_fraction=recycled,
-        denitrification_20_per_d=0.0)
+        denitrification_20_per_d=0.0, sediment_phosphorus_release_20_mg_m2_d=0.0,
+        detrital_fraction=0.0)  # a culture vessel: no sediment, and what dies leaves (no detritus)
     q = dilution_per_d * VOLUME / 86400.0
     t = np.array([T0, T0 + 2000.0])
     drivers = Drivers(time_d=t, water_temperature_C=np.full((2, 1), 20.0), shortwave_W_m2=np.full(2, SHORTWAVE),
@@ -73,6 +74,25 @@ def test_chemostat_with_mortality_breaks_even_at_total_loss_rate():
     r_star = K * (D + m) / (mu - D - m)
     assert N == pytest.approx(r_star, rel=1e-4)
     assert A[0] == pytest.approx(D * 0.5 * (10.0 - r_star) / (D + m), rel=1e-4)
+
+
+def test_chemostat_with_detritus_returns_the_dead_algae_through_remineralisation():
+    # configured with detritus: all mortality becomes detrital N (no recycling at once, no settling),
+    # remineralised at k. Growth still balances D + m, so R* = K·(D + m)/(mu − D − m) (Tilman 1982) is
+    # unchanged; the mass balance of the vessel, D·(S_in − N − D_N − A/Y) = 0, and the detritus balance,
+    # m·A/Y = (k + D)·D_N, give A* = Y·(S_in − R*)/(1 + m/(k + D)) and D_N* = m·A*/(Y·(k + D))
+    # [computed from the chemostat balances above].
+    D, m, K, mu, k = 0.2, 0.1, 0.5, 1.0, 0.3
+    spec, drivers = chemostat([group("single", mu, K, mortality=m)], D)
+    spec = replace(spec, detrital_fraction=1.0, nitrogen_remineralisation_20_per_d=k, detritus_settling_m_per_d=0.0)
+    layout = StateLayout(spec)
+    X = integrate.advance(layout.pack([[5.0]], [[1.0e4]], [[[0.5]]]), spec, drivers, T0, T0 + 400.0, dt_d=STEP_D)
+    r_star = K * (D + m) / (mu - D - m)
+    a_star = 0.5 * (10.0 - r_star) / (1.0 + m / (k + D))
+    assert layout.nitrogen(X)[0, 0] == pytest.approx(r_star, rel=1e-4)
+    assert layout.chlorophyll(X)[0, 0, 0] == pytest.approx(a_star, rel=1e-4)
+    assert layout.chlorophyll(X)[0, 0, 0] == pytest.approx(4.0774, abs=1e-4)   # 3.2619 without detritus
+    assert layout.detrital_nitrogen(X)[0, 0] == pytest.approx(m * a_star / (0.5 * (k + D)), rel=1e-4)
 
 
 def test_chemostat_washes_out_when_mu_max_is_below_dilution():

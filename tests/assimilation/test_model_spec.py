@@ -11,20 +11,46 @@ from assimilation.parameters import default_groups, default_spec
 from assimilation.spec import Basin, Drivers, Network, StateLayout
 
 
-def test_state_layout_is_basin_major_with_nitrogen_phosphorus_then_groups():
-    # layout documented in DEVELOPERS.md: [N_0, P_0, A_0,0 … A_0,G-1, N_1, …]
+def test_state_layout_is_basin_major_with_nutrient_pools_then_groups():
+    # layout documented in DEVELOPERS.md: [N_0, P_0, DN_0, DP_0, A_0,0 … A_0,G-1, N_1, …]
     spec = three_basin_spec()
     layout = StateLayout(spec)
-    assert layout.n_state == 3 * (2 + 2)
-    assert [layout.index_nitrogen(1), layout.index_phosphorus(1), layout.index_chlorophyll(1, 1)] == [4, 5, 7]
-    assert layout.names()[:4] == ["north_arm:nitrogen", "north_arm:phosphorus",
-                                  "north_arm:chl:green_algae", "north_arm:chl:cyanobacteria"]
+    assert layout.n_state == 3 * (4 + 2)
+    assert [layout.index_nitrogen(1), layout.index_phosphorus(1), layout.index_detrital_nitrogen(1),
+            layout.index_detrital_phosphorus(1), layout.index_chlorophyll(1, 1)] == [6, 7, 8, 9, 11]
+    assert layout.names()[:6] == ["north_arm:nitrogen", "north_arm:phosphorus", "north_arm:detrital_nitrogen",
+                                  "north_arm:detrital_phosphorus", "north_arm:chl:green_algae",
+                                  "north_arm:chl:cyanobacteria"]
     E = np.arange(2 * layout.n_state, dtype=float).reshape(2, -1)
-    np.testing.assert_array_equal(layout.nitrogen(E), E[:, [0, 4, 8]])
-    np.testing.assert_array_equal(layout.phosphorus(E), E[:, [1, 5, 9]])
+    np.testing.assert_array_equal(layout.nitrogen(E), E[:, [0, 6, 12]])
+    np.testing.assert_array_equal(layout.phosphorus(E), E[:, [1, 7, 13]])
+    np.testing.assert_array_equal(layout.detrital_nitrogen(E), E[:, [2, 8, 14]])
+    np.testing.assert_array_equal(layout.detrital_phosphorus(E), E[:, [3, 9, 15]])
     assert layout.chlorophyll(E).shape == (2, 3, 2)
     assert layout.chlorophyll(E)[1, 2, 1] == E[1, layout.index_chlorophyll(2, 1)]
-    np.testing.assert_array_equal(layout.pack(layout.nitrogen(E), layout.phosphorus(E), layout.chlorophyll(E)), E)
+    np.testing.assert_array_equal(layout.pack(layout.nitrogen(E), layout.phosphorus(E), layout.chlorophyll(E),
+                                              layout.detrital_nitrogen(E), layout.detrital_phosphorus(E)), E)
+
+
+def test_pack_without_detritus_leaves_the_detrital_pools_empty():
+    layout = StateLayout(three_basin_spec())
+    E = layout.pack(np.full((2, 3), 100.0), np.full((2, 3), 10.0), np.ones((2, 3, 2)))
+    assert E.shape == (2, layout.n_state)
+    np.testing.assert_array_equal(layout.detrital_nitrogen(E), 0.0)
+    np.testing.assert_array_equal(layout.detrital_phosphorus(E), 0.0)
+    np.testing.assert_array_equal(layout.nitrogen(E), 100.0)
+
+
+def test_basin_sediment_release_overrides_the_water_body_value():
+    spec = three_basin_spec(sediment_phosphorus_release_20_mg_m2_d=2.0)
+    spec = replace(spec, basins=(spec.basins[0], replace(spec.basins[1], sediment_phosphorus_release_20_mg_m2_d=0.0),
+                                 spec.basins[2]))
+    np.testing.assert_array_equal(spec.sediment_release_by_basin(), [2.0, 0.0, 2.0])
+    with pytest.raises(ValueError, match=r"Basin 'north_arm': sediment_phosphorus_release_20_mg_m2_d must be a "
+                                         r"non-negative number or None, got -1\.0"):
+        replace(spec.basins[0], sediment_phosphorus_release_20_mg_m2_d=-1.0)
+    with pytest.raises(ValueError, match=r"detrital_fraction must be in \[0, 1\], got 1\.5"):
+        replace(spec, detrital_fraction=1.5)
 
 
 def test_layout_accessors_keep_leading_axes_of_saved_trajectories():
@@ -190,8 +216,10 @@ def test_member_temperatures_keep_the_mass_budget_identity():
     assert forcing.water_temperature_C.shape == (1, 6, 3)
     dE = model.tendency(E, spec, forcing)
     volume = np.array([b.volume_m3 for b in spec.basins])
-    dn = ((layout.nitrogen(dE) + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
-    dp = ((layout.phosphorus(dE) + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
+    dn = ((layout.nitrogen(dE) + layout.detrital_nitrogen(dE)
+           + spec.nitrogen_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
+    dp = ((layout.phosphorus(dE) + layout.detrital_phosphorus(dE)
+           + spec.phosphorus_to_chlorophyll * layout.total_chlorophyll(dE)) * volume).sum(-1)
     net = budget.mass_fluxes(E, spec, forcing)["net"]
     np.testing.assert_allclose(np.stack([dn, dp], -1) * 1e-6, net, rtol=1e-10, atol=1e-12 * np.abs(net).max())
     # warmer members release more sediment phosphorus

@@ -60,19 +60,36 @@ def test_empty_observations_aggregate_to_empty():
 
 def test_operators_see_what_each_instrument_measures():
     # Two basins, two groups (green algae, cyanobacteria); state per basin
-    # [N, P, A_green, A_cyano] (DEVELOPERS.md layout). The fluorescence
+    # [N, P, DN, DP, A_green, A_cyano] (DEVELOPERS.md layout). The fluorescence
     # sensor sees gain × total chlorophyll, phycocyanin the cyanobacteria
-    # (DESIGN.md, observation operators).
-    state = np.array([[100.0, 8.0, 3.0, 5.0, 50.0, 4.0, 1.0, 2.0],
-                      [120.0, 9.0, 2.0, 6.0, 60.0, 5.0, 1.5, 2.5]])
+    # (DESIGN.md, observation operators); total P and total N the sum of the
+    # pools, algal N and P by the stoichiometry passed in.
+    state = np.array([[100.0, 8.0, 30.0, 4.0, 3.0, 5.0, 50.0, 4.0, 20.0, 2.0, 1.0, 2.0],
+                      [120.0, 9.0, 35.0, 4.5, 2.0, 6.0, 60.0, 5.0, 25.0, 2.5, 1.5, 2.5]])
     gains = np.array([[1.2], [0.8]])
-    obs = Observations(np.zeros(5), ["chlorophyll_fluorescence", "phycocyanin", "chlorophyll_a", "nitrate", "srp"],
-                       [0, 1, 1, 1, 0], [0, -1, -1, -1, -1], np.ones(5), np.ones(5))
-    H = operator_matrix(obs, 2, 2, [False, True])
+    kinds = ["chlorophyll_fluorescence", "phycocyanin", "chlorophyll_a", "nitrate", "srp", "total_phosphorus",
+             "total_nitrogen"]
+    obs = Observations(np.zeros(7), kinds, [0, 1, 1, 1, 0, 0, 1], [0, -1, -1, -1, -1, -1, -1], np.ones(7),
+                       np.ones(7))
+    H = operator_matrix(obs, 2, 2, [False, True], nitrogen_to_chlorophyll=9.0, phosphorus_to_chlorophyll=1.5)
     HE = predict(state, gains, obs, H)
-    expected = np.array([[1.2 * 8.0, 2.0, 3.0, 50.0, 8.0],
-                         [0.8 * 8.0, 2.5, 4.0, 60.0, 9.0]])
+    expected = np.array([[1.2 * 8.0, 2.0, 3.0, 50.0, 8.0, 8.0 + 4.0 + 1.5 * 8.0, 50.0 + 20.0 + 9.0 * 3.0],
+                         [0.8 * 8.0, 2.5, 4.0, 60.0, 9.0, 9.0 + 4.5 + 1.5 * 8.0, 60.0 + 25.0 + 9.0 * 4.0]])
     np.testing.assert_allclose(HE, expected)
+
+
+def test_total_phosphorus_operator_agrees_with_the_budget_and_defaults_to_the_default_stoichiometry():
+    from assimilation.budget import total_nitrogen, total_phosphorus
+    from assimilation.parameters import default_spec
+    from assimilation.spec import Basin, Network, StateLayout
+
+    spec = default_spec((Basin("a", 1e6, 2.0, 5e5), Basin("b", 1e6, 3.0, 3e5)), Network((1, -1)))
+    E = np.random.default_rng(3).uniform(0.5, 80.0, (4, StateLayout(spec).n_state))
+    obs = Observations(np.zeros(4), ["total_phosphorus", "total_phosphorus", "total_nitrogen", "total_nitrogen"],
+                       [0, 1, 0, 1], [-1] * 4, np.ones(4), np.ones(4))
+    HE = predict(E, np.ones((4, 0)), obs, operator_matrix(obs, 2, 2, [False, True]))
+    np.testing.assert_allclose(HE[:, :2], total_phosphorus(E, spec), rtol=1e-14)
+    np.testing.assert_allclose(HE[:, 2:], total_nitrogen(E, spec), rtol=1e-14)
 
 
 def test_operator_rejects_basin_outside_the_model():

@@ -54,7 +54,8 @@ def chemostat(groups, dilution_per_d, days, nitrogen_in=10.0, phosphorus_in=1.0e
         network=Network(downstream=(-1,), inflow_basin=(0,)), par_fraction=PAR_FRACTION,
         background_attenuation_per_m=K_BACKGROUND, chlorophyll_attenuation_m2_mg=0.0,
         nitrogen_to_chlorophyll=2.0, phosphorus_to_chlorophyll=1.0, recycled_fraction=0.0,
-        sediment_phosphorus_release_20_mg_m2_d=0.0, denitrification_20_per_d=0.0)
+        sediment_phosphorus_release_20_mg_m2_d=0.0, denitrification_20_per_d=0.0,
+        detrital_fraction=0.0)  # a culture vessel: what dies leaves with the outflow (no detritus)
     t = T0 + np.arange(0.0, days + 1e-9, STEP_D)
     n = t.size
     q = dilution_per_d * VOLUME / 86400.0
