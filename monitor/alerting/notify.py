@@ -61,6 +61,7 @@ class SendSummary:
     failed: int  # failed this round, will be retried
     dead: int    # failed for the last time this round, kept as "dead"
     deferred: int = 0  # not tried this round: their server was unreachable earlier in the round
+    last_error: str | None = None  # the last failure of the round
 
 
 def retry_delay(attempts: int, base_delay_s: float = BASE_DELAY_S, max_delay_s: float = MAX_DELAY_S) -> dt.timedelta:
@@ -156,6 +157,7 @@ def send_due(engine: Engine, transport: Transport, now: dt.datetime, *, limit: i
             .where(and_(outbox.c.status == "pending", outbox.c.channel == channel, outbox.c.next_attempt_at <= now))
             .order_by(outbox.c.next_attempt_at, outbox.c.id).limit(limit)).all()
     sent = failed = dead = deferred = 0
+    last_error = None
     down: set[str] = set()  # servers found unreachable this round
     session = transport.session() if hasattr(transport, "session") else contextlib.nullcontext(transport)
     with session as channel_out:
@@ -175,7 +177,7 @@ def send_due(engine: Engine, transport: Transport, now: dt.datetime, *, limit: i
                 if unreachable(exc):
                     down.add(server)
                 attempts = row.attempts + 1
-                error = f"{type(exc).__name__}: {exc}"[:2000]
+                error = last_error = f"{type(exc).__name__}: {exc}"[:2000]
                 values = dict(last_error=error)
                 if attempts >= max_attempts:
                     values["status"] = "dead"
@@ -192,4 +194,4 @@ def send_due(engine: Engine, transport: Transport, now: dt.datetime, *, limit: i
                         status="sent", sent_at=now, last_error=None))
                     _finish_attempt(conn, row, attempt, "accepted", str(answer)[:2000] if answer else None, clock())
                 sent += 1
-    return SendSummary(sent=sent, failed=failed, dead=dead, deferred=deferred)
+    return SendSummary(sent=sent, failed=failed, dead=dead, deferred=deferred, last_error=last_error)

@@ -29,9 +29,13 @@ def test_scheduler_has_ingest_cycle_and_send_jobs_at_the_configured_times(tmp_pa
     service = _service(tmp_path)
     scheduler = build_scheduler(service, BackgroundScheduler(timezone="UTC"))
     jobs = {job.id: job for job in scheduler.get_jobs()}
-    assert set(jobs) == {"ingest", "cycle", "send"}
+    assert set(jobs) == {"ingest", "cycle", "send", "webhooks"}
     assert "hour='0'" in str(jobs["cycle"].trigger) and "minute='0'" in str(jobs["cycle"].trigger)
-    assert jobs["ingest"].trigger.interval == dt.timedelta(minutes=15)
+    assert jobs["ingest"].trigger.trigger.interval == dt.timedelta(minutes=15)
+    assert jobs["send"].trigger.trigger.interval == jobs["webhooks"].trigger.trigger.interval == dt.timedelta(minutes=1)
+    # [schedule] misfire_grace_minutes defaults to 60: a cycle up to an hour late still runs
+    assert jobs["cycle"].misfire_grace_time == 3600 and jobs["cycle"].coalesce
+    assert {job.name for job in jobs.values()} == set(jobs)  # named jobs, not "run" four times
 
 
 def test_ingest_job_loads_new_drop_folder_files_once(tmp_path):
