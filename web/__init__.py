@@ -61,6 +61,7 @@ def create_app(config: Config | str | os.PathLike | None = None, *,
     app.register_blueprint(pages)
     app.register_blueprint(api, url_prefix="/api/v1")
     app.register_blueprint(push_api)
+    app.register_blueprint(__import__("web.health", fromlist=["health_api"]).health_api)
 
     @app.context_processor
     def _globals():

@@ -13,6 +13,7 @@ passes as downtime does.
 from __future__ import annotations
 
 import datetime as dt
+import math
 import time
 
 from apscheduler.triggers.base import BaseTrigger
@@ -49,10 +50,12 @@ class ServiceClock:
         return self.start + (wall - self.anchor) * self.speed
 
     def to_wall(self, service: dt.datetime) -> dt.datetime:
-        """A service time as the wall-clock time it happens at."""
+        """A service time as the wall-clock time it happens at, rounded up to the microsecond (so a job
+        fired then reads a service time no earlier than ``service``)."""
         if self.start is None:
             return service
-        return self.anchor + (service - self.start) / self.speed
+        us = (service - self.start) // dt.timedelta(microseconds=1)
+        return self.anchor + dt.timedelta(microseconds=math.ceil(us / self.speed))
 
     def wall_seconds(self, service_seconds: float) -> float:
         """A duration in service time as wall-clock seconds [s]."""
