@@ -6,6 +6,7 @@ from __future__ import annotations
 import datetime as dt
 import json
 import time
+from pathlib import Path
 
 import pytest
 import requests
@@ -184,3 +185,26 @@ def test_webhooks_follow_the_water_bodies_and_levels_they_ask_for(tmp_path, rece
 def test_a_webhook_config_is_checked_at_load(tmp_path, change, message):
     with pytest.raises(ConfigError, match=message):
         make_config(tmp_path, [{**hook("utility", "https://utility.example.org/hook"), **change}])
+
+
+def _readme_verify():
+    """The ``verify`` function of README.md's "Webhooks" section, exactly as documented."""
+    readme = (Path(__file__).resolve().parents[3] / "README.md").read_text(encoding="utf-8")
+    section = readme.split("## Webhooks", 1)[1].split("\n## ", 1)[0]
+    code = section.split("```python\n", 1)[1].split("```", 1)[0]
+    namespace: dict = {}
+    exec(compile(code, "README.md", "exec"), namespace)  # the documented recipe itself
+    return namespace["verify"]
+
+
+def test_the_readme_recipe_accepts_a_genuine_request_and_refuses_tampering(tmp_path, receivers):
+    receiver = receivers()
+    cfg, engine, _ = raise_alert(tmp_path, [hook("utility", receiver.url)])
+    send_due(engine, WebhookTransport(cfg.webhooks), T0, channel="webhook")
+    (genuine,) = receiver.requests
+    verify_doc = _readme_verify()
+    assert verify_doc(SECRET.encode(), genuine["headers"], genuine["body"]) is True
+    assert verify_doc(SECRET.encode(), genuine["headers"], genuine["body"] + b"\n") is False
+    stale = dict(genuine["headers"], **{"X-Bloomline-Timestamp": str(int(time.time()) - 301)})
+    assert verify_doc(SECRET.encode(), stale, genuine["body"]) is False
+    engine.dispose()
