@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import contextlib
 import datetime as dt
+import logging
 import os
 from pathlib import Path
 
@@ -31,6 +32,7 @@ from monitor.store import lease as rows
 from monitor.timeutil import UTC
 
 NAME = "scheduler"
+log = logging.getLogger("bloomline")
 
 
 def _wall_now() -> dt.datetime:
@@ -67,17 +69,21 @@ class _AdvisoryLock:
             return False
 
     def release(self) -> None:
+        """Unlock at once (``pg_advisory_unlock_all``, answered before a waiting scheduler's next try), then
+        end the session, so the connection never goes back to the pool holding a lock."""
         if self.conn is not None:
             with contextlib.suppress(Exception):
-                self.conn.execute(text(f"SELECT pg_advisory_unlock({self.SQL_KEY})"), {"name": self.name})
+                self.conn.execute(text("SELECT pg_advisory_unlock_all()"))
                 self.conn.commit()
+        self._drop()
 
     def close(self) -> None:
         self.release()
-        self._drop()
 
     def _drop(self) -> None:
         if self.conn is not None:
+            with contextlib.suppress(Exception):
+                self.conn.invalidate()  # closes the database session itself
             with contextlib.suppress(Exception):
                 self.conn.close()
             self.conn = None
@@ -137,11 +143,18 @@ class SchedulerLease:
         return self.term is not None
 
     def acquire(self) -> bool:
-        """Try once to become the acting scheduler; True when this process holds the lease."""
+        """Try once to become the acting scheduler; True when this process holds the lease.
+
+        A database that cannot be reached is a "not now" (logged), not a crash.
+        """
         if self.lock is not None and not self.lock.try_acquire():
             return False
-        term = rows.take(self.engine, self.name, self.holder, now=_wall_now(), seconds=self.seconds,
-                         force=self.lock is not None)
+        try:
+            term = rows.take(self.engine, self.name, self.holder, now=_wall_now(), seconds=self.seconds,
+                             force=self.lock is not None)
+        except Exception as exc:  # noqa: BLE001 - try again at the next poll
+            log.warning("could not take the scheduler lease: %s", exc, extra={"event": "lease.error"})
+            term = None
         if term is None:
             if self.lock is not None:
                 self.lock.release()
@@ -153,8 +166,12 @@ class SchedulerLease:
         """Heartbeat; False (and the lease dropped) when it was lost."""
         if self.term is None:
             return False
-        ok = (self.lock is None or self.lock.alive()) and rows.renew(
-            self.engine, self.name, self.holder, self.term, now=_wall_now(), seconds=self.seconds)
+        try:
+            ok = (self.lock is None or self.lock.alive()) and rows.renew(
+                self.engine, self.name, self.holder, self.term, now=_wall_now(), seconds=self.seconds)
+        except Exception as exc:  # noqa: BLE001 - an unconfirmed lease is a lost one: step down, try again
+            log.warning("could not renew the scheduler lease: %s", exc, extra={"event": "lease.error"})
+            ok = False
         if not ok:
             self.term = None
             if self.lock is not None:

@@ -102,7 +102,8 @@ def save_forecast_run(bind: Bind, water_body_id: str, analysis_utc: dt.datetime,
     of the members' daily means of Bloomline and of the baselines.
     A run for the same water body
     and analysis time replaces the earlier one, so re-running a cycle is
-    idempotent.
+    idempotent. ``bind``: an engine (own transaction) or a connection (the
+    caller's: the cycle records checkpoint, run and alerts together).
     """
     runs, vals = schema.forecast_runs, schema.forecast_values
     with begin(bind) as conn:

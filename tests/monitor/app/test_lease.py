@@ -127,3 +127,19 @@ def test_postgresql_a_killed_holder_is_replaced_at_once(pg_engine, postgres_url)
     # the fixture's store lives in a schema of its own; the child process reaches it through PGOPTIONS
     env = dict(os.environ, PGOPTIONS=f"-csearch_path={schema_name}")
     _killed_holder_is_replaced_at_once(pg_engine, postgres_url, env)
+
+
+def test_a_store_that_cannot_be_written_means_step_down_not_crash(sqlite_store, monkeypatch):
+    a = SchedulerLease(sqlite_store, holder="host:1", seconds=30)
+    assert a.acquire()
+
+    def locked(*args, **kwargs):
+        raise RuntimeError("database is locked")
+
+    monkeypatch.setattr(rows, "renew", locked)
+    assert a.renew() is False and not a.held
+    monkeypatch.setattr(rows, "take", locked)
+    assert a.acquire() is False
+    monkeypatch.undo()
+    assert a.acquire() and a.term == 2  # the same process takes it back once the store answers
+    a.close()
