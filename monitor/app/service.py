@@ -105,10 +105,11 @@ class Service:
             raise
         outcome = "failed" if record.error else "ok"
         self._finish(run_id, outcome, t0, record.error, record.counts)
-        (log.warning if record.error else log.info)(
-            "%s %s", name, "failed: " + record.error if record.error else "finished",
-            extra={"event": f"job.{outcome if outcome == 'failed' else 'finished'}", "outcome": outcome,
-                   "duration_s": round(time.monotonic() - t0, 3), "counts": record.counts, **fields})
+        done = {"outcome": outcome, "duration_s": round(time.monotonic() - t0, 3), "counts": record.counts, **fields}
+        if record.error:
+            log.warning("%s failed: %s", name, record.error, extra={"event": "job.failed", **done})
+        else:
+            log.info("%s finished", name, extra={"event": "job.finished", **done})
 
     def _finish(self, run_id: int, outcome: str, t0: float, error: str | None, counts: dict) -> None:
         try:
