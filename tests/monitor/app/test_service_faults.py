@@ -172,7 +172,7 @@ def test_a_season_replay_survives_repeated_sigkills(tmp_path, receivers):
     assert kills >= 20 and len(checks) == kills
 
 
-@pytest.mark.parametrize("sig", [signal.SIGTERM, signal.SIGINT])
+@pytest.mark.parametrize("sig", [signal.SIGTERM, signal.SIGINT], ids=["SIGTERM", "SIGINT"])
 def test_sigterm_and_sigint_finish_the_current_cycle_and_stop_within_seconds(tmp_path, receivers, sig):
     smtp, smtp_port, hook = receivers
     folder, path = _setup(tmp_path, smtp_port, hook.url)

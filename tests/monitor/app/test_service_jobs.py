@@ -220,3 +220,19 @@ def test_the_wall_clock_leaves_triggers_unchanged():
     inner = CronTrigger(hour=6, minute=0, timezone="UTC")
     now = dt.datetime(2026, 7, 1, 5, 0, tzinfo=UTC)
     assert ClockTrigger(clock, inner).get_next_fire_time(None, now) == inner.get_next_fire_time(None, now)
+
+
+@pytest.mark.slow
+def test_cycles_on_a_local_dask_cluster_are_recorded_per_water_body(tmp_path):
+    service = _service(tmp_path)
+    from dataclasses import replace
+
+    service.config = replace(service.config, service=replace(service.config.service, dask_scheduler="local"))
+    try:
+        summaries = service.run_cycles(ANALYSIS, season_start=ANALYSIS - dt.timedelta(days=1))
+    finally:
+        service.close()
+    assert [s["water_body"] for s in summaries] == ["corrisdale", "sorrel-lake"]
+    assert all(s["status"] != "failed" and s["run_id"] is not None for s in summaries)
+    runs = job_runs_list(service.engine, job="cycle")
+    assert sorted((r["water_body"], r["outcome"]) for r in runs) == [("corrisdale", "ok"), ("sorrel-lake", "ok")]
