@@ -53,6 +53,7 @@ def create_app(config: Config | str | os.PathLike | None = None, *,
     from web.api import api
     from web.chart_cache import ChartCache
     from web.charts import charts
+    from web.health import health_api
     from web.openapi import openapi_document
     from web.pages import pages
     from web.push import push_api
@@ -81,16 +82,18 @@ def create_app(config: Config | str | os.PathLike | None = None, *,
     app.register_blueprint(push_api)
     app.register_blueprint(verification)
     app.register_blueprint(whatif)
+    app.register_blueprint(health_api)
     security.csrf.exempt(api)
     security.csrf.exempt(push_api)
     security.csrf.exempt(whatif)  # JSON API and a GET form
     limit(app, limiter)
     answer_cache.install(app)
     app.extensions["bloomline"]["openapi"] = lambda: openapi_document(app)
+    from web.health import OPENAPI_PATH as health_paths
     from web.verification import OPENAPI_PATH as verification_paths
     from web.whatif import OPENAPI_PATH as whatif_paths
 
-    app.extensions["bloomline"]["openapi_paths"].update({**verification_paths, **whatif_paths})
+    app.extensions["bloomline"]["openapi_paths"].update({**verification_paths, **whatif_paths, **health_paths})
 
     members = cfg.filter.members
 

@@ -1,18 +1,32 @@
 """The text of Bloomline's emails: an alert change and a sign-up confirmation.
 
 Pure functions from a water body's config, an alert event and a
-subscriber to a subject and a plain-text body; every email names the alert
-framework with its source and carries the caution.
+subscriber to an :class:`EmailContent`: a subject, a plain-text body, the
+same content as HTML, and (alert emails to a subscriber) the one-click
+unsubscribe link for the ``List-Unsubscribe`` header (RFC 2369 §3.2,
+RFC 8058). Every email names the alert framework with its public citation
+and carries the caution; links start at the configured ``[service]
+base_url``.
 """
 
 from __future__ import annotations
 
 import datetime as dt
+import html
+from dataclasses import dataclass
 
 from monitor.alerting.caution import CAUTION
 from monitor.alerting.frameworks import FRAMEWORKS
 from monitor.alerting.levels import level_label
 from monitor.alerting.subscriptions import Subscriber
+
+
+@dataclass(frozen=True)
+class EmailContent:
+    subject: str
+    text: str
+    html: str
+    unsubscribe_url: str | None = None  # for List-Unsubscribe (alert emails to a subscriber)
 
 
 def _label(water_body, level: int) -> str:
@@ -21,7 +35,7 @@ def _label(water_body, level: int) -> str:
 
 
 def framework_line(water_body) -> str:
-    """The framework in use, with its source, in one sentence."""
+    """The framework in use, with its public citation, in one sentence."""
     fw = FRAMEWORKS.get(water_body.alerts.framework)
     if fw is None:
         return f"Alert levels: {water_body.alerts.framework} (levels set in this water body's configuration)."
@@ -37,6 +51,16 @@ def basin_name(water_body, basin_id: str) -> str:
 
 def _fmt_time(t: dt.datetime) -> str:
     return t.astimezone(dt.UTC).strftime("%Y-%m-%d %H:%M UTC")
+
+
+def _link(base_url: str, path: str) -> str:
+    """``path`` under the configured base URL (one slash between them)."""
+    return f"{base_url.rstrip('/')}/{path.lstrip('/')}"
+
+
+def unsubscribe_url(base_url: str, subscriber: Subscriber) -> str:
+    """The subscriber's unsubscribe link: a page for people, and the RFC 8058 one-click POST target."""
+    return _link(base_url, f"unsubscribe/{subscriber.token}")
 
 
 def _why(water_body, event: dict) -> str:
@@ -57,8 +81,20 @@ def _why(water_body, event: dict) -> str:
     return "; ".join(parts) + "."
 
 
-def render_alert(water_body, event: dict, *, base_url: str, subscriber: Subscriber | None = None) -> tuple[str, str]:
-    """Subject and plain-text body of the email for one alert change.
+def _html(title: str, paragraphs: list[str], links: list[tuple[str, str]], footer: list[str]) -> str:
+    """A small, self-contained HTML body: escaped text, links, the caution set apart."""
+    esc = html.escape
+    body = [f"<p>{esc(p)}</p>" for p in paragraphs]
+    body += [f'<p>{esc(label)}: <a href="{esc(url, quote=True)}">{esc(url)}</a></p>' for label, url in links]
+    body.append(f'<p style="border-left:4px solid #b35c00;padding-left:8px"><strong>{esc(CAUTION)}</strong></p>')
+    body += [f'<p style="color:#555;font-size:90%">{f}</p>' for f in footer]
+    return ('<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
+            f"<title>{esc(title)}</title></head>\n<body style=\"font-family:sans-serif;max-width:40em\">\n"
+            + "\n".join(body) + "\n</body></html>\n")
+
+
+def render_alert(water_body, event: dict, *, base_url: str, subscriber: Subscriber | None = None) -> EmailContent:
+    """The email for one alert change: subject, plain text, HTML and the unsubscribe link.
 
     ``event`` is a dict as returned by :func:`monitor.alerting.rules.evaluate_run`
     (water_body_id, basin_id, time_utc, from_level, to_level, probability,
@@ -68,7 +104,7 @@ def render_alert(water_body, event: dict, *, base_url: str, subscriber: Subscrib
     basin = basin_name(water_body, event["basin_id"])
     where = f"{basin}, {water_body.name}"
     old, new = event["from_level"], event["to_level"]
-    page = f"{base_url.rstrip('/')}/water-bodies/{water_body.id}"
+    page = _link(base_url, f"water-bodies/{water_body.id}")
     if new > old:
         subject = f"Bloomline alert: {where} raised to {_label(water_body, new)}"
         lv = water_body.alerts.levels[new - 1]
@@ -85,38 +121,30 @@ def render_alert(water_body, event: dict, *, base_url: str, subscriber: Subscrib
         subject = f"Bloomline: {where} lowered to {_label(water_body, new)}"
         first = (f"The alert level for {where} has been lowered from {_label(water_body, old)} "
                  f"to {_label(water_body, new)}. {_label(water_body, new)} still applies.")
-    lines = [
-        first,
-        "",
-        "Why: " + _why(water_body, event),
-        f"Analysis time: {_fmt_time(event['time_utc'])}",
-        framework_line(water_body),
-        "",
-        f"Forecast and history: {page}",
-        "",
-        CAUTION,
-    ]
+    why = "Why: " + _why(water_body, event)
+    when = f"Analysis time: {_fmt_time(event['time_utc'])}"
+    framework = framework_line(water_body)
+    lines = [first, "", why, when, framework, "", f"Forecast and history: {page}", "", CAUTION]
+    footer: list[str] = []
+    unsubscribe = None
     if subscriber is not None:
-        lines += [
-            "",
-            f"You receive this because {subscriber.email} is subscribed to alerts for {water_body.name} "
-            f"at {_label(water_body, subscriber.min_level)} and above.",
-            f"Unsubscribe: {base_url.rstrip('/')}/unsubscribe/{subscriber.token}",
-        ]
-    return subject, "\n".join(lines) + "\n"
+        unsubscribe = unsubscribe_url(base_url, subscriber)
+        why_you = (f"You receive this because {subscriber.email} is subscribed to alerts for {water_body.name} "
+                   f"at {_label(water_body, subscriber.min_level)} and above.")
+        lines += ["", why_you, f"Unsubscribe: {unsubscribe}"]
+        esc = html.escape
+        footer = [esc(why_you), f'<a href="{esc(unsubscribe, quote=True)}">Unsubscribe</a>']
+    text = "\n".join(lines) + "\n"
+    return EmailContent(subject, text, _html(subject, [first, why, when, framework],
+                                             [("Forecast and history", page)], footer), unsubscribe)
 
 
-def render_confirmation(water_body, subscriber: Subscriber, *, base_url: str) -> tuple[str, str]:
-    """Subject and body of the email asking a web sign-up to confirm its address."""
+def render_confirmation(water_body, subscriber: Subscriber, *, base_url: str) -> EmailContent:
+    """The email asking a web sign-up to confirm its address."""
     subject = f"Bloomline: confirm your alert subscription for {water_body.name}"
-    body = "\n".join([
-        f"Someone, probably you, asked to receive Bloomline alert emails for {water_body.name} "
-        f"at {_label(water_body, subscriber.min_level)} and above.",
-        "",
-        f"Confirm: {base_url.rstrip('/')}/subscribe/confirm/{subscriber.token}",
-        "",
-        "If you did not ask for this, ignore this email: nothing is sent until the link is followed.",
-        "",
-        CAUTION,
-    ]) + "\n"
-    return subject, body
+    ask = (f"Someone, probably you, asked to receive Bloomline alert emails for {water_body.name} "
+           f"at {_label(water_body, subscriber.min_level)} and above.")
+    confirm = _link(base_url, f"subscribe/confirm/{subscriber.token}")
+    ignore = "If you did not ask for this, ignore this email: nothing is sent until the link is followed."
+    text = "\n".join([ask, "", f"Confirm: {confirm}", "", ignore, "", CAUTION]) + "\n"
+    return EmailContent(subject, text, _html(subject, [ask], [("Confirm", confirm)], [html.escape(ignore)]))

@@ -22,9 +22,11 @@ quiet: it may raise on the observation, but never advances the clearing.
 
 :func:`evaluate_run` applies the rule to one stored forecast run, writes
 ``alert_status`` and ``alert_events`` and queues the emails
-(:mod:`monitor.alerting.outbox`) in one transaction. Evaluating a run that
-is not newer than the last one evaluated for the basin changes nothing, so
-re-running a cycle is safe.
+(:mod:`monitor.alerting.outbox`) and webhook calls
+(:mod:`monitor.alerting.webhooks`) in one transaction: its own, or the
+caller's when given a connection (the cycle records its checkpoint, run and
+alerts together). Evaluating a run that is not newer than the last one
+evaluated for the basin changes nothing, so re-running a cycle is safe.
 """
 
 from __future__ import annotations
@@ -35,12 +37,13 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from sqlalchemy import and_, select, update
-from sqlalchemy.engine import Engine
 
+from monitor.alerting import webhooks
 from monitor.alerting.frameworks import AlertLevel
 from monitor.alerting.levels import level_label
 from monitor.alerting.outbox import enqueue_event
 from monitor.store.schema import alert_events, alert_status, forecast_runs, forecast_values
+from monitor.store.txn import Bind, begin
 
 QUANTITY = "cyanobacteria_chlorophyll"
 DAY = dt.timedelta(days=1)
@@ -170,25 +173,26 @@ def exceedance_maxima(conn, run_id: int, analysis_utc: dt.datetime, horizon_days
     return {b: horizon.get(b, daily.get(b, {})) for b in set(daily) | set(horizon)}
 
 
-def evaluate_run(engine: Engine, config, water_body_id: str, run_id: int,
+def evaluate_run(bind: Bind, config, water_body_id: str, run_id: int,
                  observed: Mapping[str, float | None], now: dt.datetime) -> list[dict]:
     """Evaluate the alert rule for every basin of one forecast run; return the events.
 
+    ``bind`` is an engine (own transaction) or a connection (the caller's).
     ``observed`` maps basin id to the latest QC-passed daily mean of the
     phycocyanin sensor (cyanobacterial chlorophyll-a) [µg/L] or None.
     Writes ``alert_status`` (``updated_utc`` is the analysis time of the last
-    run evaluated), one ``alert_events`` row per change and the outbox
-    emails, all in one transaction. Each event dict carries id,
+    run evaluated), one ``alert_events`` row per change, the outbox emails
+    and the webhook calls, all in one transaction. Each event dict carries id,
     water_body_id, basin_id, time_utc (the run's analysis time), from_level,
-    to_level, level_name, probability, observed_ugL, reason, run_id and
-    emails (messages queued).
+    to_level, level_name, probability, observed_ugL, reason, run_id, emails
+    and webhooks (messages queued).
     """
     if now.tzinfo is None:
         raise ValueError("now must be an aware datetime (UTC)")
     wb = config.water_body(water_body_id)
     rule = wb.alerts
     events: list[dict] = []
-    with engine.begin() as conn:
+    with begin(bind) as conn:
         run = conn.execute(select(forecast_runs).where(forecast_runs.c.id == run_id)).first()
         if run is None:
             raise ValueError(f"no forecast run with id {run_id}")
@@ -226,5 +230,6 @@ def evaluate_run(engine: Engine, config, water_body_id: str, run_id: int,
                          level_name=level_label(wb, d.level), probability=d.probability,
                          observed_ugL=d.observed_ugL, reason=reason, run_id=run_id)
             event["emails"] = enqueue_event(conn, wb, event, base_url=config.service.base_url, now=now)
+            event["webhooks"] = webhooks.enqueue_alert(conn, config, wb, event, now=now)
             events.append(event)
     return events

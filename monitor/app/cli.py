@@ -11,6 +11,7 @@ import click
 
 from monitor.app.hindcast_cli import hindcast
 from monitor.app.ingest_cli import ingest
+from monitor.app.ops_cli import backup, health, outbox, prune
 from monitor.app.whatif_cli import what_if
 from monitor.config import ConfigError, load_config
 from monitor.timeutil import now_utc, parse_utc
@@ -23,9 +24,28 @@ def _load(path: str):
         raise click.ClickException(f"configuration error: {exc}") from None
 
 
-def _parse_time(value: str | None) -> dt.datetime:
-    """The --at option: ISO 8601 (naive = UTC), or now."""
-    return now_utc() if value is None else parse_utc(value)
+class IsoTime(click.ParamType):
+    """An ISO 8601 date or date and time; without an offset it is UTC."""
+
+    name = "ISO-8601"
+
+    def convert(self, value, param, ctx):
+        if isinstance(value, dt.datetime):
+            return value
+        try:
+            return parse_utc(str(value).strip())
+        except ValueError:
+            self.fail(f"expected an ISO 8601 date or time such as 2026-08-20 or 2026-08-20T06:00Z, "
+                      f"got {value!r}", param, ctx)
+
+
+def _check_water_bodies(config, ids: tuple[str, ...]) -> None:
+    """Refuse unknown water body ids with the known ones."""
+    known = [wb.id for wb in config.water_bodies]
+    unknown = [w for w in ids if w not in known]
+    if unknown:
+        raise click.BadParameter(f"unknown water body {unknown[0]!r}; expected one of {', '.join(known)}",
+                                 param_hint="'--water-body'")
 
 
 config_option = click.option("--config", "config_path", envvar="BLOOMLINE_CONFIG", required=True,
@@ -71,14 +91,16 @@ def upgrade(config_path: str) -> None:
 
 @main.command()
 @config_option
-@click.option("--at", "at", help="Analysis time (ISO 8601, UTC if no offset); default now.")
+@click.option("--at", "at", type=IsoTime(), help="Analysis time (ISO 8601, UTC if no offset); default now.")
 @click.option("--water-body", "water_body", multiple=True, help="Only these water bodies (repeatable).")
-def cycle(config_path: str, at: str | None, water_body: tuple[str, ...]) -> None:
+def cycle(config_path: str, at: dt.datetime | None, water_body: tuple[str, ...]) -> None:
     """Run one assimilation and forecast cycle now (or --at a time)."""
     from monitor.app.service import Service
 
-    svc = Service(_load(config_path))
-    for summary in svc.run_cycles(_parse_time(at), only=water_body or None):
+    config = _load(config_path)
+    _check_water_bodies(config, water_body)
+    svc = Service(config)
+    for summary in svc.run_cycles(at or now_utc(), only=water_body or None):
         events = ", ".join(f"{e['basin_id']}: level {e['from_level']}→{e['to_level']}" for e in summary["events"])
         click.echo(f"{summary['water_body']} {summary['analysis_utc']}: {summary['status']}"
                    f"{' — ' + summary['message'] if summary['message'] else ''}{'; ' + events if events else ''}")
@@ -87,11 +109,15 @@ def cycle(config_path: str, at: str | None, water_body: tuple[str, ...]) -> None
 @main.command()
 @config_option
 def send(config_path: str) -> None:
-    """Send the emails waiting in the outbox (failed ones are retried later)."""
+    """Send the emails and webhook calls waiting in the outbox (failed ones are retried later)."""
+    import dataclasses
+
     from monitor.app.service import Service
 
-    result = Service(_load(config_path)).send_mail()
-    click.echo(json.dumps(result.__dict__ if hasattr(result, "__dict__") else result, default=str))
+    svc = Service(_load(config_path))
+    result = {"email": dataclasses.asdict(svc.send_mail()), "webhooks": dataclasses.asdict(svc.send_webhooks())}
+    svc.close()
+    click.echo(json.dumps(result, default=str))
 
 
 @main.command()
@@ -114,11 +140,27 @@ def serve(config_path: str, host: str | None, port: int | None) -> None:
 @main.command()
 @config_option
 @click.option("--with-web/--no-web", default=True, help="Serve the web app in the same process.")
-def run(config_path: str, with_web: bool) -> None:
-    """Run the service: scheduled ingest, daily cycles, email sending (and the web app)."""
+@click.option("--log-format", type=click.Choice(["json", "text"]), default="json", show_default=True,
+              help="Logs on stderr: one JSON object per line, or plain text.")
+@click.option("--clock-start", type=IsoTime(), default=None, hidden=True,
+              help="Rehearsal: the service time at --clock-anchor (default: the wall clock).")
+@click.option("--clock-speed", type=click.FloatRange(min=0, min_open=True), default=1.0, hidden=True,
+              help="Rehearsal: service seconds per wall-clock second.")
+@click.option("--clock-anchor", type=float, default=None, hidden=True,
+              help="Rehearsal: the Unix time [s] at which the service time is --clock-start (default: now).")
+def run(config_path: str, with_web: bool, log_format: str, clock_start: dt.datetime | None, clock_speed: float,
+        clock_anchor: float | None) -> None:
+    """Run the service: scheduled ingest, daily cycles, emails and webhooks (and the web app).
+
+    Several processes may run against one database: one acts, the others
+    take over within [schedule] lease_seconds when it stops. SIGTERM or
+    SIGINT finish the current work and stop.
+    """
+    from monitor.app.clock import ServiceClock
     from monitor.app.scheduler import run_service
 
-    run_service(_load(config_path), with_web=with_web)
+    clock = ServiceClock(clock_start, speed=clock_speed, anchor=clock_anchor)
+    run_service(_load(config_path), with_web=with_web, clock=clock, json_logs=log_format == "json")
 
 
 @main.command()
@@ -150,6 +192,10 @@ def demo(workdir: str, serve_: bool, as_json: bool, port: int, feeds: str | None
 main.add_command(ingest)
 main.add_command(hindcast)
 main.add_command(what_if)
+main.add_command(health)
+main.add_command(outbox)
+main.add_command(prune)
+main.add_command(backup)
 
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import collections
 import datetime as dt
+import re
 import shutil
 import sys
 from pathlib import Path
@@ -64,6 +65,18 @@ def prepare_workdir(workdir: Path, feeds: Path) -> Path:
     return workdir / "bloomline.toml"
 
 
+def set_base_url(config_path: Path, base_url: str) -> None:
+    """Point the demo config's ``[service] base_url`` (the links in emails and webhooks) at the served port."""
+    text = config_path.read_text(encoding="utf-8")
+    line = f'base_url = "{base_url}"'
+    new, n = re.subn(r'(?m)^base_url\s*=\s*"[^"]*"', line, text, count=1)
+    if n == 0:
+        new, n = re.subn(r"(?m)^\[service\]\s*$", "[service]\n" + line, text, count=1)
+    if n == 0:
+        raise click.ClickException(f"{config_path} has no [service] table to set base_url in")
+    config_path.write_text(new, encoding="utf-8")
+
+
 def season_days(engine) -> list[dt.datetime]:
     """Daily analysis times (00:00 UTC) from the day after the first buoy reading to the last."""
     r = schema.readings
@@ -109,6 +122,7 @@ def run_demo(workdir: Path, *, feeds: Path | None = None, quiet: bool = False,
     feeds = feeds or SAMPLE_FEEDS
     say = (lambda *a, **k: None) if quiet else (lambda msg: click.echo(msg, err=True))
     config_path = prepare_workdir(workdir.resolve(), feeds.resolve())
+    set_base_url(config_path, f"http://127.0.0.1:{port}")
     config = load_config(config_path)
     say(f"Demo folder: {workdir.resolve()}")
     # The season's files are loaded first, as an archive received after the season

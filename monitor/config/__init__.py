@@ -5,7 +5,7 @@ Every error names the file, the key (a dotted path such as
 :func:`load_config` refuses to return a half-valid configuration: unknown
 keys are refused in every table, and each water body's model spec and
 filter settings are built at load exactly as the cycle builds them.
-Secrets (SMTP password, push tokens) may be given by the name of an
+Secrets (SMTP password, push tokens, webhook signing secrets) may be given by the name of an
 environment variable instead of in the file.
 
 Modules: :mod:`~monitor.config.models` (the dataclasses),
@@ -42,6 +42,7 @@ from monitor.config.models import (
     StationConfig,
     SubscriberConfig,
     WaterBodyConfig,
+    WebhookConfig,
 )
 from monitor.config.sections import FILTER_SETTINGS_KEYS
 from monitor.config.stations import QC_KEYS
@@ -51,7 +52,7 @@ __all__ = [
     "ConfigError", "load_config", "parse_config", "model_spec", "filter_config", "chlorophyll_sensors",
     "Config", "ServiceConfig", "ScheduleConfig", "SmtpConfig", "FilterSettings", "ObservationErrorConfig",
     "WaterBodyConfig", "BasinConfig", "InflowConfig", "AlertConfig", "StationConfig", "Calibration",
-    "FeedConfig", "ColumnConfig", "SubscriberConfig", "DEFAULT_OBSERVATION_ERRORS",
+    "FeedConfig", "ColumnConfig", "SubscriberConfig", "WebhookConfig", "DEFAULT_OBSERVATION_ERRORS",
     "USES", "STATION_KINDS", "FEED_KINDS", "FEED_ROLES", "LAYOUTS", "BELOW_DETECTION",
     "FILTER_SETTINGS_KEYS", "QC_KEYS", "MODEL_KEYS",
 ]

@@ -26,6 +26,7 @@ from monitor.config.sections import (
     read_service,
     read_smtp,
     read_subscriber,
+    read_webhook,
 )
 from monitor.config.stations import qc_table, read_station
 from monitor.config.water_bodies import read_water_body
@@ -38,11 +39,12 @@ def parse_config(data: Mapping[str, Any], path: Path | None = None) -> Config:
     stations = tuple(read_station(st) for st in top.items("stations"))
     cfg = Config(
         path=path, service=read_service(top.sub("service"), base), schedule=read_schedule(top.sub("schedule")),
-        smtp=read_smtp(top.sub("smtp")), filter=read_filter(top.sub("filter")),
+        smtp=read_smtp(top.sub("smtp"), base), filter=read_filter(top.sub("filter")),
         observation_errors=read_observation_errors(top.sub("observation_errors")),
         water_bodies=tuple(read_water_body(w) for w in top.items("water_bodies", required=True)),
         stations=stations, feeds=tuple(read_feed(f, base, stations) for f in top.items("feeds")),
-        subscribers=tuple(read_subscriber(s) for s in top.items("subscribers")), qc=qc_table(top, "qc"))
+        subscribers=tuple(read_subscriber(s) for s in top.items("subscribers")), qc=qc_table(top, "qc"),
+        webhooks=tuple(read_webhook(w) for w in top.items("webhooks")))
     top.finish()
     _cross_check(cfg, path)
     check_filter_config(cfg, path)
@@ -85,6 +87,13 @@ def _cross_check(cfg: Config, path: Path | None) -> None:
         for w in sub.water_bodies:
             if w not in wb_ids:
                 raise ConfigError(path, f"subscribers[{i}].water_bodies", f"unknown water body {w!r}")
+    hook_names = [h.name for h in cfg.webhooks]
+    if len(set(hook_names)) != len(hook_names):
+        raise ConfigError(path, "webhooks", f"webhook names must be unique, got {hook_names}")
+    for i, hook in enumerate(cfg.webhooks):
+        for w in hook.water_bodies:
+            if w not in wb_ids:
+                raise ConfigError(path, f"webhooks[{i}].water_bodies", f"unknown water body {w!r}")
 
 
 def load_config(path: str | os.PathLike) -> Config:

@@ -170,6 +170,11 @@ class SmtpConfig:
     password: str | None = None
     starttls: bool = False
     timeout_s: float = 10.0
+    ca_file: Path | None = None  # CA bundle that signs the server's certificate (default: the system's)
+
+
+CATCH_UP = ("latest", "each-day")
+WEBHOOK_EVENTS = ("alert", "forecast")
 
 
 @dataclass(frozen=True)
@@ -177,6 +182,29 @@ class ScheduleConfig:
     cycle_at_utc: str = "06:00"
     ingest_every_minutes: float = 15.0
     send_every_minutes: float = 1.0
+    #: a second scheduler takes over within this time after the active one dies [s]
+    lease_seconds: float = 30.0
+    #: a daily cycle that starts later than its time by at most this still runs [min]
+    misfire_grace_minutes: float = 60.0
+    #: after downtime: one cycle per water body at the latest due time, or one per missed day
+    catch_up: str = "latest"
+
+
+@dataclass(frozen=True)
+class WebhookConfig:
+    """One subscriber's JSON webhook: alert changes and new forecasts, signed with HMAC-SHA256."""
+
+    name: str
+    url: str
+    secret: str
+    water_bodies: tuple[str, ...]  # empty: every water body
+    events: tuple[str, ...] = WEBHOOK_EVENTS
+    min_level: int = 1
+    timeout_s: float = 10.0
+
+    def wants(self, water_body_id: str, event: str) -> bool:
+        """Does this webhook subscribe to ``event`` ("alert" or "forecast") of the water body?"""
+        return event in self.events and (not self.water_bodies or water_body_id in self.water_bodies)
 
 
 @dataclass(frozen=True)
@@ -237,6 +265,7 @@ class Config:
     stations: tuple[StationConfig, ...]
     feeds: tuple[FeedConfig, ...]
     subscribers: tuple[SubscriberConfig, ...]
+    webhooks: tuple[WebhookConfig, ...] = ()
     # indexes built once from the tuples above (the first of equal ids wins;
     # loading refuses duplicate ids anyway)
     _water_body_by_id: Mapping[str, WaterBodyConfig] = field(init=False, repr=False, compare=False)

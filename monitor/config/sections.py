@@ -3,17 +3,21 @@
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 from monitor.config.model_setup import filter_option_kinds
 from monitor.config.models import (
+    CATCH_UP,
     DEFAULT_OBSERVATION_ERRORS,
+    WEBHOOK_EVENTS,
     FilterSettings,
     ObservationErrorConfig,
     ScheduleConfig,
     ServiceConfig,
     SmtpConfig,
     SubscriberConfig,
+    WebhookConfig,
 )
 from monitor.config.reader import Reader, database_url, resolve, secret
 
@@ -38,10 +42,14 @@ def read_service(s: Reader, base: Path) -> ServiceConfig:
 
 
 def read_schedule(sc: Reader) -> ScheduleConfig:
-    """``[schedule]``: daily cycle time (HH:MM UTC) and the ingest and send intervals [min]."""
+    """``[schedule]``: daily cycle time (HH:MM UTC), the ingest and send intervals [min], the
+    scheduler lease [s], the daily cycle's misfire grace [min] and the catch-up after downtime."""
     schedule = ScheduleConfig(cycle_at_utc=sc.get("cycle_at_utc", str, "06:00"),
                               ingest_every_minutes=sc.positive("ingest_every_minutes", 15.0),
-                              send_every_minutes=sc.positive("send_every_minutes", 1.0))
+                              send_every_minutes=sc.positive("send_every_minutes", 1.0),
+                              lease_seconds=sc.positive("lease_seconds", 30.0),
+                              misfire_grace_minutes=sc.positive("misfire_grace_minutes", 60.0),
+                              catch_up=sc.choice("catch_up", CATCH_UP, "latest"))
     hh, _, mm = schedule.cycle_at_utc.partition(":")
     if not (hh.isdigit() and mm.isdigit() and int(hh) < 24 and int(mm) < 60):
         raise sc.error("cycle_at_utc", f"expected HH:MM, got {schedule.cycle_at_utc!r}")
@@ -49,14 +57,55 @@ def read_schedule(sc: Reader) -> ScheduleConfig:
     return schedule
 
 
-def read_smtp(sm: Reader) -> SmtpConfig:
+def read_smtp(sm: Reader, base: Path | None = None) -> SmtpConfig:
     """``[smtp]``; the password may come from an environment variable (``password_env``)."""
     smtp = SmtpConfig(host=sm.get("host", str, "127.0.0.1"), port=sm.get("port", int, 25),
                       sender=sm.get("sender", str, "bloomline@localhost"),
                       username=sm.get("username", str, None), password=secret(sm, "password"),
-                      starttls=sm.get("starttls", bool, False), timeout_s=sm.positive("timeout_s", 10.0))
+                      starttls=sm.get("starttls", bool, False), timeout_s=sm.positive("timeout_s", 10.0),
+                      ca_file=_ca_file(sm, base))
     sm.finish()
     return smtp
+
+
+def _ca_file(sm: Reader, base: Path | None) -> Path | None:
+    value = sm.get("ca_file", str, None)
+    if value is None:
+        return None
+    path = resolve(base or Path.cwd(), value)
+    if not path.is_file():
+        raise sm.error("ca_file", f"no such file: {path}")
+    return path
+
+
+#: A webhook's name: it is part of idempotency keys and Message-IDs, so letters, digits, '-' and '_'.
+_WEBHOOK_NAME = re.compile(r"^[A-Za-z0-9_-]{1,64}$")
+#: Shortest secret accepted for HMAC-SHA256 signing [characters] (common practice: at least 128 bits).
+MIN_SECRET_LENGTH = 16
+
+
+def read_webhook(wh: Reader) -> WebhookConfig:
+    """One ``[[webhooks]]`` table: name, url, secret (or secret_env), water_bodies, events,
+    min_level, timeout_s [s]. Its water bodies are checked by the loader."""
+    name = wh.get("name", str)
+    if not _WEBHOOK_NAME.match(name):
+        raise wh.error("name", f"expected 1–64 letters, digits, '-' or '_', got {name!r}")
+    url = wh.get("url", str)
+    if not url.startswith(("http://", "https://")):
+        raise wh.error("url", f"expected an http:// or https:// URL, got {url!r}")
+    secret_value = secret(wh, "secret")
+    if not secret_value or len(secret_value) < MIN_SECRET_LENGTH:
+        raise wh.error("secret", f"a signing secret of at least {MIN_SECRET_LENGTH} characters is required "
+                                 "(secret, or secret_env naming an environment variable)")
+    events = tuple(wh.get("events", list, list(WEBHOOK_EVENTS)))
+    for e in events:
+        if e not in WEBHOOK_EVENTS:
+            raise wh.error("events", f"expected a list of {', '.join(WEBHOOK_EVENTS)}; got {e!r}")
+    webhook = WebhookConfig(name=name, url=url, secret=secret_value,
+                            water_bodies=tuple(wh.get("water_bodies", list, [])), events=events,
+                            min_level=wh.get("min_level", int, 1), timeout_s=wh.positive("timeout_s", 10.0))
+    wh.finish()
+    return webhook
 
 
 def read_filter(fr: Reader) -> FilterSettings:

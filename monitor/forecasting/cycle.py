@@ -7,19 +7,20 @@
    filter analysis (``assimilation.filter_cycle``), ensemble forecast to the
    horizon (``assimilation.integrate``) and daily statistics
    (``assimilation.forecast``). It runs in-process or on a Dask worker.
-3. :func:`record` stores the checkpoint and the forecast run and evaluates
-   the alert rules.
+3. :func:`record` stores the checkpoint and the forecast run, evaluates
+   the alert rules and queues the messages, in one transaction.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from sqlalchemy.engine import Engine
+from sqlalchemy.engine import Connection, Engine
 
 from assimilation import filter_cycle
 from assimilation.augmentation import split
@@ -35,6 +36,7 @@ from assimilation.forecast import QUANTILES, daily_statistics, simulate_with_mod
 from assimilation.observe import OBSERVABLE_KINDS, Observations
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 from monitor.alerting import rules as alerts
+from monitor.alerting import webhooks
 from monitor.config import Config, WaterBodyConfig
 from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.forecasting.baselines import baseline_members
@@ -437,28 +439,44 @@ def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysi
     return out
 
 
-def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.datetime | None = None) -> dict:
-    """Store a cycle's checkpoint and forecast, then evaluate the alert rules; returns a summary.
+def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.datetime | None = None,
+           guard: Callable[[Connection], None] | None = None) -> dict:
+    """Store a cycle's checkpoint and forecast and evaluate the alert rules, in one transaction; returns a summary.
+
+    The checkpoint, the forecast run with its values and members, the alert
+    status and events, and the outbox rows of the emails and webhook calls
+    commit together or not at all, so a crash leaves no visible intermediate
+    state (no checkpoint without its run, no run whose alert level is not
+    published). Recording the same cycle again replaces the run and changes
+    no alert (:func:`monitor.alerting.rules.evaluate_run` skips a run already
+    evaluated) and queues no message twice. ``guard(conn)`` runs first in
+    the transaction and raises to refuse it (the scheduler's lease).
 
     After a cold start the alert rules wait ``spin_up_cycles`` cycles, while
     the ensemble's first-guess spread settles on the readings.
     """
     wb = config.water_body(outputs.water_body_id)
     analysis = from_epoch_days(outputs.analysis_d)
-    warm = store.count_forecast_runs(engine, wb.id, before=analysis) >= config.filter.spin_up_cycles
+    observed = latest_observed(engine, config, wb, analysis) if outputs.forecasts else {}
     message = outputs.message
-    if outputs.forecasts and not warm:
-        message = (message + "; " if message else "") + \
-            f"spin-up: alert rules start after {config.filter.spin_up_cycles} cycles"
-    if outputs.checkpoint is not None:
-        store.save_checkpoint(engine, wb.id, analysis, outputs.checkpoint, now=now)
-    run_id = store.save_forecast_run(engine, wb.id, analysis, outputs.status, message,
-                                     outputs.diagnostics, forecast_rows(outputs),
-                                     members=member_rows(outputs), now=now)
-    events = []
-    if outputs.forecasts and warm:
-        observed = latest_observed(engine, config, wb, analysis)
-        events = alerts.evaluate_run(engine, config, wb.id, run_id, observed, now or analysis)
+    with engine.begin() as conn:
+        if guard is not None:
+            guard(conn)
+        warm = store.count_forecast_runs(conn, wb.id, before=analysis) >= config.filter.spin_up_cycles
+        if outputs.forecasts and not warm:
+            message = (message + "; " if message else "") + \
+                f"spin-up: alert rules start after {config.filter.spin_up_cycles} cycles"
+        if outputs.checkpoint is not None:
+            store.save_checkpoint(conn, wb.id, analysis, outputs.checkpoint, now=now)
+        run_id = store.save_forecast_run(conn, wb.id, analysis, outputs.status, message,
+                                         outputs.diagnostics, forecast_rows(outputs),
+                                         members=member_rows(outputs), now=now)
+        events = []
+        if outputs.forecasts and warm:
+            events = alerts.evaluate_run(conn, config, wb.id, run_id, observed, now or analysis)
+        if outputs.forecasts:
+            maxima = alerts.exceedance_maxima(conn, run_id, analysis, wb.alerts.horizon_days)
+            webhooks.enqueue_forecast(conn, config, wb, run_id=run_id, analysis=analysis, status=outputs.status,
+                                      maxima=maxima, now=now or analysis)
     return {"water_body": wb.id, "analysis_utc": analysis.isoformat(), "status": outputs.status,
             "message": message, "run_id": run_id, "events": events}
-

@@ -17,6 +17,7 @@ from sqlalchemy.engine import Engine
 
 from monitor.config import Config
 from monitor.store import schema
+from monitor.store.txn import Bind, begin, reading
 from monitor.timeutil import now_utc
 
 
@@ -46,11 +47,14 @@ def sync_config(engine: Engine, config: Config) -> None:
 # Checkpoints
 
 
-def save_checkpoint(engine: Engine, water_body_id: str, time_utc: dt.datetime, data: bytes,
+def save_checkpoint(bind: Bind, water_body_id: str, time_utc: dt.datetime, data: bytes,
                     *, now: dt.datetime | None = None) -> None:
-    """Store the checkpoint of ``water_body_id`` at ``time_utc`` (replacing one at the same time)."""
+    """Store the checkpoint of ``water_body_id`` at ``time_utc`` (replacing one at the same time).
+
+    ``bind``: an engine (own transaction) or a connection (the caller's transaction).
+    """
     t = schema.checkpoints
-    with engine.begin() as conn:
+    with begin(bind) as conn:
         conn.execute(delete(t).where((t.c.water_body_id == water_body_id) & (t.c.time_utc == time_utc)))
         conn.execute(insert(t).values(water_body_id=water_body_id, time_utc=time_utc,
                                       created_at=now or now_utc(), data=data))
@@ -85,7 +89,7 @@ def prune_checkpoints(engine: Engine, water_body_id: str, keep: int = 14) -> int
 # Forecast runs
 
 
-def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datetime, status: str,
+def save_forecast_run(bind: Bind, water_body_id: str, analysis_utc: dt.datetime, status: str,
                       message: str, diagnostics: dict | None,
                       values: Iterable[tuple[str, dt.datetime, str, str, float]],
                       *, members: Iterable[tuple[str, str, str, str, np.ndarray]] = (),
@@ -98,10 +102,11 @@ def save_forecast_run(engine: Engine, water_body_id: str, analysis_utc: dt.datet
     of the members' daily means of Bloomline and of the baselines.
     A run for the same water body
     and analysis time replaces the earlier one, so re-running a cycle is
-    idempotent.
+    idempotent. ``bind``: an engine (own transaction) or a connection (the
+    caller's: the cycle records checkpoint, run and alerts together).
     """
     runs, vals = schema.forecast_runs, schema.forecast_values
-    with engine.begin() as conn:
+    with begin(bind) as conn:
         old = conn.execute(select(runs.c.id).where((runs.c.water_body_id == water_body_id)
                                                    & (runs.c.analysis_utc == analysis_utc))).scalar()
         if old is not None:
@@ -142,11 +147,19 @@ def load_forecast_members(engine: Engine, run_ids: Iterable[int]
     return out
 
 
-def count_forecast_runs(engine: Engine, water_body_id: str, *, before: dt.datetime | None = None) -> int:
+def count_forecast_runs(bind: Bind, water_body_id: str, *, before: dt.datetime | None = None) -> int:
     """How many forecast runs of a water body are stored (with an analysis time before ``before``)."""
     runs = schema.forecast_runs
     q = select(func.count()).select_from(runs).where(runs.c.water_body_id == water_body_id)
     if before is not None:
         q = q.where(runs.c.analysis_utc < before)
-    with engine.connect() as conn:
+    with reading(bind) as conn:
         return int(conn.execute(q).scalar())
+
+
+def newest_run_times(bind: Bind) -> dict[str, dt.datetime]:
+    """The analysis time of each water body's newest stored forecast run (any status)."""
+    runs = schema.forecast_runs
+    with reading(bind) as conn:
+        return {wb: t for wb, t in conn.execute(
+            select(runs.c.water_body_id, func.max(runs.c.analysis_utc)).group_by(runs.c.water_body_id))}

@@ -263,15 +263,78 @@ outbox = Table(
     "outbox", metadata,
     Column("id", Integer, primary_key=True, autoincrement=True),
     Column("event_id", Integer, ForeignKey("alert_events.id"), nullable=True),
-    Column("recipient", String(320), nullable=False),
-    Column("subject", Text, nullable=False),
-    Column("body", Text, nullable=False),
+    Column("recipient", String(320), nullable=False),  # an email address, or a webhook's name
+    Column("subject", Text, nullable=False),  # email subject, or the webhook's event type
+    Column("body", Text, nullable=False),  # plain text, or the webhook's JSON
     Column("created_at", UTCDateTime, nullable=False),
     Column("status", String(16), nullable=False),  # pending | sent | dead
-    Column("attempts", Integer, nullable=False, default=0),
+    Column("attempts", Integer, nullable=False, default=0),  # delivery attempts started
     Column("next_attempt_at", UTCDateTime, nullable=False),
     Column("last_error", Text, nullable=True),
     Column("sent_at", UTCDateTime, nullable=True),
+    Column("channel", String(16), nullable=False, server_default="email"),  # email | webhook
+    # the idempotency key: Message-ID and X-Bloomline-Idempotency-Key, or the webhook's event id
+    Column("message_key", String(200), nullable=False, unique=True),
+    Column("body_html", Text, nullable=True),
+    Column("headers", JSON, nullable=True),  # extra email headers (List-Unsubscribe …)
     UniqueConstraint("event_id", "recipient"),
     Index("ix_outbox_status_next", "status", "next_attempt_at"),
+)
+
+#: Every hand-over of an outbox row to a transport: started, then accepted or failed.
+#: A row left "sending" is an attempt whose process died before it knew the answer.
+delivery_attempts = Table(
+    "delivery_attempts", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("outbox_id", Integer, ForeignKey("outbox.id"), nullable=False),
+    Column("attempt", Integer, nullable=False),
+    Column("started_utc", UTCDateTime, nullable=False),
+    Column("ended_utc", UTCDateTime, nullable=True),
+    Column("outcome", String(16), nullable=False),  # sending | accepted | failed
+    Column("detail", Text, nullable=True),  # the server's answer or the error
+    Column("owner", String(128), nullable=False),  # host:pid of the sender
+    UniqueConstraint("outbox_id", "attempt"),
+)
+
+#: One row per job run: ingest rounds, each water body's daily cycle, send rounds.
+job_runs = Table(
+    "job_runs", metadata,
+    Column("id", Integer, primary_key=True, autoincrement=True),
+    Column("job", String(32), nullable=False),  # ingest | cycle | send | webhooks
+    Column("water_body_id", String(64), nullable=True),
+    Column("scheduled_utc", UTCDateTime, nullable=True),  # a cycle's analysis time
+    Column("started_utc", UTCDateTime, nullable=False),  # the service clock
+    Column("ended_utc", UTCDateTime, nullable=True),
+    Column("duration_s", Float, nullable=True),  # wall-clock duration [s]
+    Column("outcome", String(16), nullable=False),  # running | ok | failed | interrupted
+    Column("error", Text, nullable=True),
+    Column("counts", JSON, nullable=True),
+    Column("owner", String(128), nullable=False),  # host:pid of the process that ran it
+    Index("ix_job_runs_job_wb_started", "job", "water_body_id", "started_utc"),
+)
+
+#: The one scheduler allowed to act: holder, heartbeat and a term raised at each takeover.
+scheduler_lease = Table(
+    "scheduler_lease", metadata,
+    Column("name", String(64), primary_key=True),
+    Column("holder", String(128), nullable=False),
+    Column("term", Integer, nullable=False),
+    Column("acquired_utc", UTCDateTime, nullable=False),  # wall clock
+    Column("heartbeat_utc", UTCDateTime, nullable=False),
+    Column("expires_utc", UTCDateTime, nullable=False),
+)
+
+#: What each http-pull feed remembers between polls and across restarts.
+pull_states = Table(
+    "pull_states", metadata,
+    Column("feed", String(100), primary_key=True),
+    Column("etag", Text, nullable=True),
+    Column("last_modified", String(100), nullable=True),
+    Column("last_sha256", String(64), nullable=True),
+    Column("failures", Integer, nullable=False, default=0),
+    Column("next_attempt_utc", UTCDateTime, nullable=True),
+    Column("last_error", Text, nullable=True),
+    Column("last_status", Integer, nullable=True),
+    Column("history", JSON, nullable=True),
+    Column("updated_utc", UTCDateTime, nullable=False),
 )

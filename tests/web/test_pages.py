@@ -80,7 +80,7 @@ def test_subscribe_confirm_and_unsubscribe_through_the_pages_and_the_mailbox(app
     (eml,) = (tmp_path / "mailbox").glob("*.eml")
     msg = email.message_from_bytes(eml.read_bytes(), policy=email.policy.default)
     assert msg["To"] == "fen@quillmere.example" and "confirm" in msg["Subject"]
-    (confirm_link,) = _links(msg.get_content())
+    (confirm_link,) = _links(msg.get_body(preferencelist=("plain",)).get_content())
 
     assert "Confirm" in client.get(confirm_link).get_data(as_text=True)
     assert subscriptions.subscribers_for(engine, "quillmere", 1) == []  # a GET (link scanner) changes nothing

@@ -12,7 +12,9 @@
 
 Fetching (:func:`fetch`, returns bytes) is split from ingesting
 (:func:`pull_feed`); the HTTP session is injected so tests use a real local
-server and the scheduler one shared session.
+server and the scheduler one shared session. The service keeps each feed's
+:class:`PullState` in the store (:func:`load_states`, :func:`save_state`),
+so validators and back-off survive a restart.
 """
 
 from __future__ import annotations
@@ -25,6 +27,7 @@ from dataclasses import dataclass, field
 import requests
 
 from monitor.ingest.batches import BatchResult, ingest_bytes
+from monitor.store import pull_state as stored_states
 from monitor.timeutil import UTC, as_utc, now_utc
 
 MAX_BACKOFF = dt.timedelta(hours=6)
@@ -42,7 +45,7 @@ class FetchResponse:
 
 @dataclass
 class PullState:
-    """What one http-pull feed remembers between polls (in memory; a restart fetches once more, harmlessly)."""
+    """What one http-pull feed remembers between polls (kept in the store by the service)."""
 
     etag: str | None = None
     last_modified: str | None = None
@@ -56,6 +59,22 @@ class PullState:
     def note(self, text: str) -> None:
         self.history.append(text)
         del self.history[:-20]
+
+
+def load_states(engine) -> dict[str, PullState]:
+    """The stored state of every http-pull feed: feed name → :class:`PullState`."""
+    return {feed: PullState(etag=v["etag"], last_modified=v["last_modified"], last_sha256=v["last_sha256"],
+                            failures=int(v["failures"] or 0), next_attempt=v["next_attempt_utc"],
+                            last_error=v["last_error"], last_status=v["last_status"], history=list(v["history"] or []))
+            for feed, v in stored_states.load_all(engine).items()}
+
+
+def save_state(engine, feed_name: str, state: PullState, *, now: dt.datetime) -> None:
+    """Store one feed's :class:`PullState` (replacing the stored one)."""
+    stored_states.save(engine, feed_name, {
+        "etag": state.etag, "last_modified": state.last_modified, "last_sha256": state.last_sha256,
+        "failures": state.failures, "next_attempt_utc": state.next_attempt, "last_error": state.last_error,
+        "last_status": state.last_status, "history": list(state.history)}, now=now)
 
 
 def _retry_after(value: str | None) -> float | None:

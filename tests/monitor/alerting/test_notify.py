@@ -14,8 +14,8 @@ from aiosmtpd.controller import Controller
 from sqlalchemy import insert, select
 
 from monitor.alerting.caution import CAUTION
-from monitor.alerting.notify import LEASE, build_message, retry_delay, send_due
-from monitor.alerting.outbox import enqueue, outbox_counts, requeue_dead
+from monitor.alerting.notify import ATTEMPT_HEADER, IDEMPOTENCY_HEADER, LEASE, build_message, retry_delay, send_due
+from monitor.alerting.outbox import attempts_of, enqueue, outbox_counts, requeue, requeue_dead
 from monitor.alerting.transports import MailboxTransport, SmtpTransport, transport_from_config
 from monitor.config import SmtpConfig, parse_config
 from monitor.store.db import open_store
@@ -210,7 +210,9 @@ def test_smtp_server_down_then_up_loses_nothing(engine, smtp_server):
     port = free_port()  # nobody listens here yet
     queue(engine, 2)
     down = SmtpTransport(SmtpConfig(host="127.0.0.1", port=port, sender="alerts@bloomline.test", timeout_s=2.0))
-    assert send_due(engine, down, T0).failed == 2
+    summary = send_due(engine, down, T0)
+    # the first message finds the server down; the second is not tried against it this round
+    assert (summary.failed, summary.deferred) == (1, 1)
     handler, smtp = smtp_server()
     assert send_due(engine, SmtpTransport(smtp), T0 + dt.timedelta(minutes=1)).sent == 2
     assert len(handler.messages) == 2 and outbox_counts(engine) == {"sent": 2}
@@ -246,7 +248,65 @@ def test_a_crash_while_sending_leaves_the_message_pending_for_after_the_lease(en
     with pytest.raises(ProcessDied, match="killed while sending"):
         send_due(engine, Crash(), T0)
     row = rows(engine)[0]
-    assert (row.status, row.attempts, row.next_attempt_at) == ("pending", 0, T0 + LEASE)
+    assert (row.status, row.attempts, row.next_attempt_at) == ("pending", 1, T0 + LEASE)
+    assert [(a["attempt"], a["outcome"]) for a in attempts_of(engine, row.id)] == [(1, "sending")]
+
+
+def test_a_repeat_after_a_crash_carries_the_same_key_and_a_higher_attempt_number(engine, tmp_path):
+    queue(engine)
+
+    class ProcessDied(BaseException):
+        """Stands for the process being killed after the server accepted the message."""
+
+    class AcceptedThenKilled:
+        sender = "alerts@bloomline.test"
+
+        def __init__(self):
+            self.seen = []
+
+        def send(self, message):
+            self.seen.append(message)
+            raise ProcessDied("killed before the sent mark was committed")
+
+    first = AcceptedThenKilled()
+    with pytest.raises(ProcessDied, match="killed before"):
+        send_due(engine, first, T0)
+    mailbox = MailboxTransport(tmp_path / "mb", sender="alerts@bloomline.test")
+    assert send_due(engine, mailbox, T0 + LEASE - dt.timedelta(seconds=1)).sent == 0
+    assert send_due(engine, mailbox, T0 + LEASE).sent == 1
+    (again,) = [email.message_from_bytes(f.read_bytes(), policy=email.policy.default)
+                for f in (tmp_path / "mb").glob("*.eml")]
+    (before,) = first.seen
+    assert again["Message-ID"] == before["Message-ID"]
+    assert again[IDEMPOTENCY_HEADER] == before[IDEMPOTENCY_HEADER] == rows(engine)[0].message_key
+    assert (before[ATTEMPT_HEADER], again[ATTEMPT_HEADER]) == ("1", "2")
+    assert [(a["attempt"], a["outcome"]) for a in attempts_of(engine, rows(engine)[0].id)] == [
+        (1, "sending"), (2, "accepted")]
+
+
+def test_every_attempt_is_recorded_with_its_outcome(engine):
+    queue(engine)
+    transport, now = Failing(), T0
+    for _ in range(3):
+        send_due(engine, transport, now, owner="host:1")
+        now = rows(engine)[0].next_attempt_at
+    recorded = attempts_of(engine, rows(engine)[0].id)
+    assert [(a["attempt"], a["outcome"], a["owner"]) for a in recorded] == [(n, "failed", "host:1") for n in (1, 2, 3)]
+    assert all("ConnectionRefusedError" in a["detail"] and a["ended_utc"] is not None for a in recorded)
+
+
+def test_requeued_message_keeps_its_key_and_numbers_attempts_on(engine):
+    queue(engine)
+    transport, now = Failing(), T0
+    for _ in range(2):
+        send_due(engine, transport, now, max_attempts=2)
+        now = rows(engine)[0].next_attempt_at
+    assert rows(engine)[0].status == "dead"
+    key = rows(engine)[0].message_key
+    assert requeue(engine, now, ids=[rows(engine)[0].id]) == 1
+    send_due(engine, transport, now, max_attempts=2)
+    assert rows(engine)[0].message_key == key
+    assert [a["attempt"] for a in attempts_of(engine, rows(engine)[0].id)] == [1, 2, 3]
 
 
 def test_alert_change_reaches_the_subscriber_through_smtp(engine, tmp_path, smtp_server):
@@ -275,5 +335,14 @@ def test_alert_change_reaches_the_subscriber_through_smtp(engine, tmp_path, smtp
     (msg,) = handler.messages
     assert msg["To"] == "gil@hollin.example"
     assert msg["Subject"] == "Bloomline alert: Reed Arm, Hollin Mere raised to Alert Level 1 (1 µg/L)"
-    body = msg.get_content()
+    assert not msg.is_multipart() or msg.get_content_type() == "multipart/alternative"
+    body = msg.get_body(preferencelist=("plain",)).get_content()
     assert "90 %" in body and CAUTION in body and "/unsubscribe/" in body
+    html = msg.get_body(preferencelist=("html",)).get_content()
+    assert "90 %" in html and "/unsubscribe/" in html
+    # RFC 2369 §3.2: the URL in angle brackets; RFC 8058 §3.1: the one-click POST body
+    (sub_row,) = [r for r in rows(engine)]
+    token = sub_row.headers["List-Unsubscribe"]
+    assert msg["List-Unsubscribe"] == token and token.startswith("<http://bloomline.test/unsubscribe/")
+    assert msg["List-Unsubscribe-Post"] == "List-Unsubscribe=One-Click"
+    assert msg["Message-ID"] == f"<{sub_row.message_key}@bloomline.test>"

@@ -1,7 +1,7 @@
 """The live verification record: one score record per issued run, basin, quantity, lead day and forecaster.
 
 Revision ID: 0005
-Revises: 0003
+Revises: 0004
 """
 
 import sqlalchemy as sa
@@ -10,7 +10,7 @@ from alembic import op
 import monitor.store.schema
 
 revision = "0005"
-down_revision = "0003"
+down_revision = "0004"
 branch_labels = None
 depends_on = None
 
