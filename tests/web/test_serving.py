@@ -78,21 +78,38 @@ def test_run_serves_the_web_app_with_waitress(no_dev_server, config_file, monkey
     import monitor.app.scheduler as scheduler
     from monitor.config import load_config
 
+    started = threading.Event()
+
     class Idle:
+        """A service that holds no lease and does nothing, so ``run`` only starts the web app and stops."""
+
         def __init__(self, *a, **k):
             self.engine = None
-
-        def start_subscriptions(self):
-            return []
+            self.owner = "test"
 
         def close(self):
             pass
 
-    started = threading.Event()
+    class NoLease:
+        seconds = 0.01
+
+        def __init__(self, *a, **k):
+            pass
+
+        def acquire(self):
+            started.wait(10)
+            stop.set()
+            return False
+
+        def close(self):
+            pass
+
+    stop = threading.Event()
     monkeypatch.setattr(scheduler, "Service", Idle)
-    monkeypatch.setattr(scheduler, "build_scheduler", lambda service: type("S", (), {"start": lambda self: started.wait(10)})())
+    monkeypatch.setattr(scheduler, "SchedulerLease", NoLease)
+    monkeypatch.setattr(scheduler, "_on_signals", lambda *a: None)
     monkeypatch.setattr("web.serving.waitress_serve", lambda app, **kw: (no_dev_server.append(kw), started.set()))
-    scheduler.run_service(load_config(config_file), with_web=True)
+    scheduler.run_service(load_config(config_file), with_web=True, stop=stop, json_logs=False)
     assert started.is_set() and no_dev_server[0]["ident"] == "Bloomline"
 
 
