@@ -43,12 +43,13 @@ from monitor.forecasting.baselines import baseline_members
 from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
+from monitor.forecasting.late import late_restart
+from monitor.forecasting.observed_level import latest_observed
 from monitor.forecasting.publish import publish
 from monitor.forecasting.quantities import QUANTITIES, quantity_series
 from monitor.store import runs as store
-from monitor.store.late import checkpoint_created, late_readings
 from monitor.store.readings import latest_driver_forecast, readings_frame
-from monitor.timeutil import EPOCH, from_epoch_days, to_epoch_days
+from monitor.timeutil import from_epoch_days, to_epoch_days
 
 #: Air-temperature offsets [°C] of the forecast's driver scenarios; members are
 #: spread over them so the forecast carries weather uncertainty (common practice
@@ -172,36 +173,6 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
         A[:, cyano] = np.minimum(cy, 0.9 * total)
         A[:, others] = (np.maximum(total - A[:, cyano], 0.1) / max(len(others), 1))[:, None]
     return layout.pack(N, P, A, DN, DP)
-
-
-def late_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-                 found: tuple[dt.datetime, bytes]) -> tuple[tuple[dt.datetime, bytes], str]:
-    """The checkpoint to start from when readings arrived after the cycle that covered their time.
-
-    Late readings (stamped at or before the newest checkpoint, received after
-    it was stored) within ``late_window_days`` are assimilated by restarting
-    from the newest checkpoint before the earliest of them and re-analysing
-    forward; issued runs stay as issued. Returns (checkpoint, message).
-    """
-    created = checkpoint_created(engine, wb.id, found[0])
-    if created is None:
-        return found, ""
-    window_start = analysis - dt.timedelta(days=config.filter.late_window_days)
-    stations = [s.id for s in config.stations_of(wb.id) if s.basin]
-    max_flag = 3 if config.filter.assimilate_suspect else 1
-    n_all, _ = late_readings(engine, stations=stations, variables=OBSERVABLE_KINDS, start=EPOCH,
-                             covered_until=found[0], received_after=created, max_flag=max_flag)
-    n, earliest = late_readings(engine, stations=stations, variables=OBSERVABLE_KINDS, start=window_start,
-                                covered_until=found[0], received_after=created, max_flag=max_flag)
-    older = f"; {n_all - n} late readings older than {config.filter.late_window_days:g} days not assimilated" \
-        if n_all > n else ""
-    if not n:
-        return found, older.removeprefix("; ")
-    earlier = store.latest_checkpoint(engine, wb.id, at_or_before=earliest - dt.timedelta(seconds=1))
-    if earlier is None or earlier[0] < window_start - dt.timedelta(days=1):
-        return found, f"{n} late readings from {earliest:%Y-%m-%d %H:%M} UTC: no checkpoint before them{older}"
-    return earlier, (f"re-analysed from {earlier[0]:%Y-%m-%d %H:%M} UTC for {n} late readings "
-                     f"(earliest {earliest:%Y-%m-%d %H:%M} UTC){older}")
 
 
 def outlook_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, series: StationSeries,
@@ -406,37 +377,6 @@ def forecast_rows(outputs: CycleOutputs):
 def member_rows(outputs: CycleOutputs):
     """(basin, quantity, forecaster, observed variable, members (days, M)) stored for verification."""
     yield from outputs.verification_members
-
-
-#: What the observed alert level is judged on, in order: phycocyanin (cyanobacteria chlorophyll-a);
-#: where a basin has none, chlorophyll-a — extracted, else fluorescence — as the frameworks'
-#: conservative stand-in (all chlorophyll-a counted as if cyanobacterial).
-OBSERVED_LEVEL_VARIABLES = ("phycocyanin", "chlorophyll_a", "chlorophyll_fluorescence")
-
-
-def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-                    window: dt.timedelta = dt.timedelta(days=1)) -> dict[str, float | None]:
-    """Mean QC-passed reading per basin over the last day [µg/L] of the first variable of
-    ``OBSERVED_LEVEL_VARIABLES`` that the basin is monitored for (None without one that day)."""
-    out: dict[str, float | None] = {b.id: None for b in wb.basins}
-    variable_of: dict[str, str] = {}
-    stations: dict[str, str] = {}
-    for b in wb.basins:
-        for variable in OBSERVED_LEVEL_VARIABLES:
-            ids = [s.id for s in config.stations_of(wb.id, basin=b.id, variable=variable)]
-            if ids:
-                variable_of[b.id] = variable
-                stations.update(dict.fromkeys(ids, b.id))
-                break
-    if not stations:
-        return out
-    frame = readings_frame(engine, stations=list(stations), variables=sorted(set(variable_of.values())),
-                           start=analysis - window, end=analysis, max_flag=1)
-    if not frame.empty:
-        frame = frame[frame.variable == frame.station_id.map(lambda s: variable_of[stations[s]])]
-        for station, value in frame.groupby("station_id").value.mean().items():
-            out[stations[station]] = float(value)
-    return out
 
 
 def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.datetime | None = None,

@@ -6,7 +6,7 @@ import datetime as dt
 
 import pytest
 
-from monitor.forecasting.cycle import latest_observed
+from monitor.forecasting.observed_level import latest_observed
 from monitor.store.readings import readings_frame
 
 
