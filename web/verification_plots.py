@@ -11,12 +11,13 @@ matplotlib.use("Agg")
 from matplotlib.figure import Figure  # noqa: E402
 
 from web.palette import ANALYSIS as HISTORY  # noqa: E402
-from web.palette import BLUISH_GREEN, FORECAST, OBSERVED, ORANGE, REDDISH_PURPLE  # noqa: E402
+from web.palette import BLUISH_GREEN, FORECAST, OBSERVED, ORANGE, REDDISH_PURPLE, SKY_BLUE  # noqa: E402
 
 #: One colour per forecaster (Okabe & Ito 2008 palette; Bloomline as on the forecast charts).
-FORECASTER_COLOURS = {"bloomline": FORECAST, "process_model": HISTORY, "persistence": "#999999",
+FORECASTER_COLOURS = {"bloomline": FORECAST, "process_model": HISTORY, "blend": SKY_BLUE, "persistence": "#999999",
                       "persistence_ensemble": BLUISH_GREEN, "climatology": ORANGE, "statistical": REDDISH_PURPLE}
 FORECASTER_NAMES = {"bloomline": "Bloomline (published)", "process_model": "process model alone",
+                    "blend": "calibrated blend",
                     "persistence": "persistence", "persistence_ensemble": "persistence ensemble",
                     "climatology": "climatology", "statistical": "autoregression"}
 

@@ -36,6 +36,7 @@ from monitor.config import WaterBodyConfig
 from monitor.forecasting.history import OBSERVED_BY
 
 PROCESS = "process_model"
+BLEND = "blend"
 UNCALIBRATED = "blend_raw"
 #: The forecasters the blend may combine (the one-member persistence forecast is not a distribution).
 COMPONENTS = (PROCESS, "persistence_ensemble", "statistical", "climatology")

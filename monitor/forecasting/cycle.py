@@ -86,6 +86,8 @@ class CycleInputs:
     substitutions: tuple[str, ...] = ()
     #: late readings taken in (or left out), in words, for the run's message
     late_note: str = ""
+    #: publish the calibrated blend instead of the process model (``[filter] published``)
+    publish_blend: bool = False
     #: basin id of each chlorophyll sensor whose gain the filter estimates (gain columns in order)
     sensor_basins: tuple[str, ...] = ()
 
@@ -233,6 +235,7 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
         history=history, substitutions=tuple(notes), late_note=late_note,
+        publish_blend=config.filter.published == "blend",
         blend=read_blend_settings(engine, wb, analysis),
         sensor_basins=tuple(config.station(s).basin for s in chlorophyll_sensors(config, wb)))
 
@@ -286,7 +289,8 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
         status = "degraded" if status == "ok" else status
         message = "; ".join([m for m in (message, "drivers substituted: " + "; ".join(inputs.substitutions)) if m])
     published, verified_members = publish(forecasts, issued_baselines, inputs.basin_ids, verified_by, sensor_gain,
-                                          inputs.blend, {alerts.QUANTITY: inputs.thresholds_ugL})
+                                          inputs.blend, {alerts.QUANTITY: inputs.thresholds_ugL},
+                                          publish_blend=inputs.publish_blend)
     return CycleOutputs(inputs.water_body_id, inputs.analysis_d, status, message,
                         result.checkpoint.to_bytes(), _jsonable(result.diagnostics), published, inputs.basin_ids,
                         issued_baselines + verified_members)

@@ -9,8 +9,12 @@ a fluorometer, they are divided by its estimated gain (the ensemble mean) to
 join the process model in chlorophyll-a, and every member stored for
 verification is multiplied back, so each is scored against what the sensor
 reads. Besides the published members (``bloomline``), the process model's
-own (``process_model``) and the uncalibrated blend (``blend_raw``, from which
-the calibration is learnt) are stored for verification.
+own (``process_model``), the calibrated blend (``blend``) and the uncalibrated
+blend (``blend_raw``, from which the calibration is learnt) are stored for
+verification. Which of the process model and the blend is published is the
+``[filter] published`` setting (default the process model: on the demo the
+blend, though more skilful on average, warned of the first crossing of Alert
+Level 1 four days later).
 """
 
 from __future__ import annotations
@@ -19,7 +23,7 @@ import numpy as np
 
 from assimilation.blend import LeadSettings, blend
 from assimilation.forecast import DailyForecast, member_statistics
-from monitor.forecasting.blend_setup import PROCESS, UNCALIBRATED
+from monitor.forecasting.blend_setup import BLEND, PROCESS, UNCALIBRATED
 from monitor.forecasting.history import OBSERVED_BY
 
 GAIN_VARIABLES = ("chlorophyll_fluorescence",)
@@ -27,8 +31,13 @@ GAIN_VARIABLES = ("chlorophyll_fluorescence",)
 
 def publish(forecasts: dict[str, DailyForecast], baselines: list, basin_ids: tuple[str, ...],
             verified_by: dict, sensor_gain: dict, settings: dict[str, list[LeadSettings]],
-            thresholds: dict[str, tuple[float, ...]]) -> tuple[dict[str, DailyForecast], list]:
+            thresholds: dict[str, tuple[float, ...]], publish_blend: bool = False
+            ) -> tuple[dict[str, DailyForecast], list]:
     """(published forecasts by quantity, member rows for verification).
+
+    The blend is always computed and stored for verification (``blend``);
+    it is published (``bloomline``) only with ``publish_blend``, otherwise
+    the process model is.
 
     ``baselines`` rows and the returned rows are (basin, quantity, forecaster,
     observed variable, members (K + 1, M)); ``thresholds`` maps a quantity to
@@ -57,10 +66,11 @@ def publish(forecasts: dict[str, DailyForecast], baselines: list, basin_ids: tup
                              * (process.shape[0] - 1))
             members[:, :, b] = out
             blended_any = True
-            rows += [(basin, quantity, "bloomline", variable, out * gain),
-                     (basin, quantity, PROCESS, variable,
-                      process * (member_gain[None, :] if member_gain is not None else 1.0)),
+            process_seen = process * (member_gain[None, :] if member_gain is not None else 1.0)
+            rows += [(basin, quantity, "bloomline", variable, out * gain if publish_blend else process_seen),
+                     (basin, quantity, PROCESS, variable, process_seen),
+                     (basin, quantity, BLEND, variable, out * gain),
                      (basin, quantity, UNCALIBRATED, variable, raw * gain)]
-        if blended_any:
+        if blended_any and publish_blend:
             published[quantity] = member_statistics(fc.day_end_d, members, thresholds.get(quantity, ()))
     return published, rows

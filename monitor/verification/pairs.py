@@ -26,7 +26,7 @@ from monitor.store import schema
 from monitor.store.daily import daily_means
 from monitor.store.runs import load_forecast_members
 
-FORECASTERS = ("bloomline", "process_model", "blend_raw", *BASELINES)
+FORECASTERS = ("bloomline", "process_model", "blend", "blend_raw", *BASELINES)
 META_COLUMNS = ["run_id", "origin_utc", "valid_utc", "water_body", "basin_id", "quantity", "variable",
                 "lead_days", "observed", "observed_n"]
 #: A forecaster's outlook at an origin: the largest daily probability of reaching each level
