@@ -24,11 +24,14 @@ Forecasters
   with sd ``PRIOR_LOG_SD_PER_DAY·sqrt(lag)`` is mixed in.
 * :func:`climatology`: values within ±``CLIMATOLOGY_HALF_WINDOW_D`` days of
   the valid day's calendar date in previous years (a day-of-year window).
-* :func:`ar1_forecast`: a first-order autoregression of log chlorophyll-a,
-  with water temperature as regressor when given, fitted by conditional
-  least squares (statsmodels ``OLS``) on the pairs of consecutive observed
-  days (Box, Jenkins, Reinsel and Ljung 2015, *Time Series Analysis*, 5th
-  ed., Wiley, ch. 7; Hamilton 1994, *Time Series Analysis*, Princeton, ch. 8).
+* :func:`ar_forecast` (:func:`ar1_forecast` for order 1): an autoregression
+  of log chlorophyll-a, with water temperature as regressor when given,
+  fitted by conditional least squares (statsmodels ``OLS``) on the runs of
+  consecutive observed days (Box, Jenkins, Reinsel and Ljung 2015, *Time
+  Series Analysis*, 5th ed., Wiley, ch. 7; Hamilton 1994, *Time Series
+  Analysis*, Princeton, ch. 8).
+* :func:`ar_average_forecast`: the equal-weight quantile average of the
+  autoregressions of orders 1–3 (Bloomline's "statistical" forecaster).
 """
 from __future__ import annotations
 
@@ -225,43 +228,23 @@ def _fill_gaps(values):
 def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, temperature_C=None,
                  future_temperature_C=None, members: int = MEMBERS,
                  min_observations: int = MIN_AR_OBSERVATIONS, floor_ugL: float = LOG_FLOOR_UGL) -> BaselineForecast:
-    """AR(1) forecast of log chlorophyll-a, members at fixed normal quantiles [µg/L].
+    """AR(1) forecast of log chlorophyll-a: :func:`ar_forecast` of order 1."""
+    return ar_forecast(days_d, chl_ugL, origin_d, horizon_days, order=1, temperature_C=temperature_C,
+                       future_temperature_C=future_temperature_C, members=members,
+                       min_observations=min_observations, floor_ugL=floor_ugL)
 
-    The model, for z = ln chlorophyll-a (values below ``floor_ugL`` counting as
-    the floor) and T the water temperature [°C] when ``temperature_C`` (T,)
-    is given (else no β term)::
 
-        z_t = c + φ·z_{t−1} + β·T_t + ε_t,   ε_t ~ N(0, σ²)
+@dataclass(frozen=True)
+class _ArFit:
+    mean: np.ndarray   # (H,) forecast mean of z at the leads
+    sd: np.ndarray     # (H,) forecast sd of z at the leads
 
-    is fitted by conditional least squares: statsmodels ``OLS`` of z_t on
-    (1, z_{t−1}, T_t) over the pairs of consecutive days before the origin
-    with both z_t and z_{t−1} observed (Box, Jenkins, Reinsel and Ljung 2015,
-    *Time Series Analysis*, 5th ed., Wiley, ch. 7; Hamilton 1994, *Time
-    Series Analysis*, Princeton, ch. 8); gaps in the temperature history are
-    filled by linear interpolation in time (ends held). σ² is the OLS
-    residual variance (``scale``, residual sum of squares over n − k).
 
-    The forecast starts from the last observed value z_L, g days before the
-    origin, and runs the recursion m_s = c + φ·m_{s−1} + β·T_s over the g
-    gap days and the leads; the temperature is held at its last observed
-    value, except at the leads when ``future_temperature_C`` (H,) [°C] is
-    given (e.g. a driver forecast). Lead h is k = g + h steps from z_L:
-    variance v_h = σ²·Σ_{i=0}^{k−1} φ^{2i}, members
-    ``exp(m_h + sqrt(v_h)·Φ⁻¹((j − 0.5)/M))``. The variance ignores the
-    uncertainty of the fitted coefficients, so the spread is somewhat too
-    narrow on a short history.
-
-    Falls back to the persistence ensemble (``method`` says which ran,
-    ``note`` why) with fewer than ``min_observations`` pairs of consecutive
-    observed days, a singular design (e.g. a constant temperature), a
-    non-stationary fit (|φ| ≥ 1, whose forecast variance grows without
-    bound), or a non-finite forecast.
-    """
+def _ar_inputs(days_d, chl_ugL, origin_d, horizon_days, temperature_C, future_temperature_C, members, floor_ugL):
     grid, temp, valid = _history(days_d, chl_ugL, origin_d, horizon_days, extra=temperature_C)
     _check_members(members)
     if future_temperature_C is not None and temperature_C is None:
         raise ValueError("future_temperature_C needs the temperature history temperature_C")
-    fallback = _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL)
     first = np.flatnonzero(np.isfinite(grid))[0]
     z = transform.to_log(grid[first:], floor_ugL)
     notes = []
@@ -276,36 +259,129 @@ def ar1_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, tempera
                 raise ValueError(f"future_temperature_C must be finite with shape {valid.shape}, got {future.shape}")
         else:
             future = np.full(valid.size, exog[-1])
-    pairs = np.isfinite(z[1:]) & np.isfinite(z[:-1])
+    return z, exog, future, valid, notes
+
+
+def _fit_ar(z, exog, future, n_leads: int, order: int, min_observations: int) -> _ArFit | str:
+    """The ARX(``order``) forecast of ``z`` (see :func:`ar_forecast`), or the reason there is none."""
+    p = order
+    lags = np.column_stack([z[p - i - 1: z.size - i - 1] for i in range(p)]) if z.size > p else np.empty((0, p))
+    target = z[p:]
+    pairs = np.isfinite(target) & np.all(np.isfinite(lags), axis=1)
     n_pairs = int(pairs.sum())
     if n_pairs < min_observations:
-        return fallback(f"{n_pairs} pairs of consecutive observed days before the origin, "
-                        f"fewer than {min_observations}")
-    columns = [np.ones(z.size - 1), z[:-1]] + ([] if exog is None else [exog[1:]])
+        return (f"{n_pairs} runs of {p + 1} consecutive observed days before the origin, "
+                f"fewer than {min_observations}")
+    columns = [np.ones(target.size), lags] + ([] if exog is None else [exog[p:]])
     design = np.column_stack(columns)[pairs]
     if np.linalg.matrix_rank(design) < design.shape[1]:
-        return fallback("the autoregression's design is singular (constant series or temperature)")
-    fit = OLS(z[1:][pairs], design).fit()
-    c, phi = fit.params[0], fit.params[1]
-    beta = 0.0 if exog is None else fit.params[2]
-    if not abs(phi) < 1:
-        return fallback(f"the fitted autoregression is not stationary (phi = {phi:.3f})")
-    last = np.flatnonzero(np.isfinite(z))[-1]
+        return "the autoregression's design is singular (constant series or temperature)"
+    fit = OLS(target[pairs], design).fit()
+    c, phi = fit.params[0], fit.params[1: 1 + p]
+    beta = 0.0 if exog is None else fit.params[1 + p]
+    if np.any(np.abs(np.roots(np.concatenate([[1.0], -phi]))) >= 1.0):
+        return f"the fitted autoregression is not stationary (phi = {np.round(phi, 3).tolist()})"
+    last = int(np.flatnonzero(np.isfinite(z))[-1])
     gap = z.size - 1 - last
+    filled = _fill_gaps(z[: last + 1])
+    state = list(filled[max(0, last + 1 - p):][::-1])          # z_last, z_last−1, …
+    state += [state[-1]] * (p - len(state))
     held = 0.0 if exog is None else exog[-1]
-    drive = np.concatenate([np.full(gap, held), np.zeros(valid.size) if future is None else future])
+    drive = np.concatenate([np.full(gap, held), np.zeros(n_leads) if future is None else future])
     mean = np.empty(drive.size)
-    m = z[last]
     for s, t in enumerate(drive):
-        m = c + phi * m + beta * t
+        m = c + float(np.dot(phi, state)) + beta * t
         mean[s] = m
-    steps = np.arange(1, drive.size + 1)
-    var = fit.scale * (1.0 - phi ** (2 * steps)) / (1.0 - phi ** 2)     # σ²·Σ_{i<k} φ^{2i}
+        state = [m] + state[:-1]
+    psi = np.zeros(drive.size)                                   # MA(∞) weights ψ_j (Box et al. 2015, ch. 5)
+    psi[0] = 1.0
+    for j in range(1, drive.size):
+        psi[j] = sum(phi[i] * psi[j - i - 1] for i in range(min(j, p)))
+    var = fit.scale * np.cumsum(psi ** 2)                        # σ²·Σ_{j<k} ψ_j²
     mean, sd = mean[gap:], np.sqrt(var[gap:])
     if not (np.all(np.isfinite(mean)) and np.all(np.isfinite(sd))):
-        return fallback("the autoregression gave a non-finite forecast")
+        return "the autoregression gave a non-finite forecast"
+    return _ArFit(mean, sd)
+
+
+def ar_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, order: int = 1, temperature_C=None,
+                future_temperature_C=None, members: int = MEMBERS,
+                min_observations: int = MIN_AR_OBSERVATIONS, floor_ugL: float = LOG_FLOOR_UGL) -> BaselineForecast:
+    """AR(p) forecast of log chlorophyll-a, members at fixed normal quantiles [µg/L].
+
+    The model, for z = ln chlorophyll-a (values below ``floor_ugL`` counting as
+    the floor) and T the water temperature [°C] when ``temperature_C`` (T,)
+    is given (else no β term)::
+
+        z_t = c + φ_1·z_{t−1} + … + φ_p·z_{t−p} + β·T_t + ε_t,   ε_t ~ N(0, σ²)
+
+    is fitted by conditional least squares: statsmodels ``OLS`` of z_t on
+    (1, z_{t−1}, …, z_{t−p}, T_t) over the runs of p + 1 consecutive observed
+    days before the origin (Box, Jenkins, Reinsel and Ljung 2015, *Time
+    Series Analysis*, 5th ed., Wiley, ch. 7; Hamilton 1994, *Time Series
+    Analysis*, Princeton, ch. 8); gaps in the temperature history are filled
+    by linear interpolation in time (ends held). σ² is the OLS residual
+    variance (``scale``, residual sum of squares over n − k).
+
+    The forecast starts from the last observed value z_L, g days before the
+    origin (earlier lags gap-filled by interpolation), and runs the recursion
+    over the g gap days and the leads; the temperature is held at its last
+    observed value, except at the leads when ``future_temperature_C`` (H,)
+    [°C] is given. Lead h is k = g + h steps from z_L: variance
+    v_h = σ²·Σ_{j=0}^{k−1} ψ_j², ψ the MA(∞) weights of the AR polynomial,
+    members ``exp(m_h + sqrt(v_h)·Φ⁻¹((j − 0.5)/M))``. The variance ignores
+    the uncertainty of the fitted coefficients, so the spread is somewhat too
+    narrow on a short history.
+
+    Falls back to the persistence ensemble (``method`` says which ran,
+    ``note`` why) with fewer than ``min_observations`` runs of p + 1
+    consecutive observed days, a singular design (e.g. a constant
+    temperature), a non-stationary fit (a root of the AR polynomial on or
+    inside the unit circle), or a non-finite forecast.
+    """
+    if int(order) != order or order < 1:
+        raise ValueError(f"order must be a whole number >= 1, got {order!r}")
+    z, exog, future, valid, notes = _ar_inputs(days_d, chl_ugL, origin_d, horizon_days, temperature_C,
+                                               future_temperature_C, members, floor_ugL)
+    fit = _fit_ar(z, exog, future, valid.size, int(order), min_observations)
+    if isinstance(fit, str):
+        return _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL)(fit)
+    out = transform.from_log(fit.mean + fit.sd * stats.norm.ppf(_positions(members))[:, None])
+    return BaselineForecast("ar1" if order == 1 else f"ar{int(order)}", valid, out, "; ".join(notes))
+
+
+AVERAGED_ORDERS = (1, 2, 3)
+"""Orders of the autoregressions :func:`ar_average_forecast` averages (Bloomline's choice: short
+memory, a few coefficients that a season of daily values can estimate)."""
+
+
+def ar_average_forecast(days_d, chl_ugL, origin_d: float, horizon_days: int, *, orders=AVERAGED_ORDERS,
+                        temperature_C=None, future_temperature_C=None, members: int = MEMBERS,
+                        min_observations: int = MIN_AR_OBSERVATIONS,
+                        floor_ugL: float = LOG_FLOOR_UGL) -> BaselineForecast:
+    """The equal-weight quantile average of the :func:`ar_forecast` of each order in ``orders`` [µg/L].
+
+    Averaging the forecasts of several model orders with equal weights,
+    rather than selecting one, hedges against choosing the wrong order on a
+    short record (the "forecast combination puzzle": simple averages are hard
+    to beat; Timmermann 2006, Handbook of Economic Forecasting 1:135; Claeskens
+    et al. 2016, Int. J. Forecast. 32:754). Each order's forecast is normal in
+    log space, so the quantile average (Vincentization) has mean and sd the
+    means of theirs. Orders that cannot be fitted are left out; with none the
+    persistence ensemble is returned (``method`` and ``note`` say so).
+    """
+    z, exog, future, valid, notes = _ar_inputs(days_d, chl_ugL, origin_d, horizon_days, temperature_C,
+                                               future_temperature_C, members, floor_ugL)
+    fits, reasons = [], []
+    for p in orders:
+        fit = _fit_ar(z, exog, future, valid.size, int(p), min_observations)
+        (reasons if isinstance(fit, str) else fits).append(fit if not isinstance(fit, str) else f"AR({p}): {fit}")
+    if not fits:
+        return _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL)("; ".join(reasons))
+    mean = np.mean([f.mean for f in fits], axis=0)
+    sd = np.mean([f.sd for f in fits], axis=0)
     out = transform.from_log(mean + sd * stats.norm.ppf(_positions(members))[:, None])
-    return BaselineForecast("ar1", valid, out, "; ".join(notes))
+    return BaselineForecast("ar_average", valid, out, "; ".join(notes + reasons))
 
 
 def _fallback(days_d, chl_ugL, origin_d, horizon_days, members, floor_ugL):

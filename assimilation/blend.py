@@ -2,19 +2,23 @@
 
 For each lead day the blend's predictive distribution is built in three steps:
 
-1. **Linear pool** (a weighted mixture of the components' distributions, as
-   in Bayesian model averaging; Raftery, Gneiting, Balabdaoui & Polakowski
-   2005, Mon. Wea. Rev. 133:1155): the blend's distribution function is the
-   weighted sum of the components' empirical distribution functions, with
-   weights from each component's verified record (the caller's choice;
-   :func:`inverse_crps_weights` gives the default), read at the members'
-   plotting positions. A mixture keeps each component's tails, so an event
-   one component foresees keeps its share of probability.
-2. **Calibration** in log space, after the moment form of non-homogeneous
-   Gaussian regression (EMOS; Gneiting, Raftery, Westveld & Goldman 2005,
-   Mon. Wea. Rev. 133:1098): the blend's mean log error on its record is
-   removed and its spread about the mean is scaled so that its spread matches
-   its root-mean-square error on the record (a spread-to-error ratio of one).
+1. **Quantile averaging** (Vincentization; Vincent 1912, Ratcliff 1979,
+   Psychol. Bull. 86:446; for forecasts Lichtendahl, Grushka-Cockayne &
+   Winkler 2013, Manage. Sci. 59:1594): the blend's quantile at each
+   plotting position is the weighted mean of the components' quantiles there,
+   in natural-log space. Unlike a linear pool (a mixture), which widens with
+   every component's disagreement, a quantile average is as sharp as its
+   components on average; and because the CRPS is an integral of quantile
+   scores that are convex in the quantile, the average's CRPS is never larger
+   than the weighted mean of the components' CRPS (Lichtendahl et al. 2013).
+2. **Calibration** in log space, after non-homogeneous Gaussian regression
+   (EMOS; Gneiting, Raftery, Westveld & Goldman 2005, Mon. Wea. Rev.
+   133:1098): a mean log error to remove and a factor on the spread about the
+   mean. The weights, the bias and the factor are fitted together by
+   minimising the mean CRPS of the normal distribution N(Σ w_c μ_c − a,
+   (s·Σ w_c σ_c)²) over the record (:func:`fit_combination`), μ_c and σ_c the
+   components' member mean and sd of log chlorophyll-a — the quantile average
+   of normals being exactly that normal.
 3. **Ensemble copula coupling** (ECC; Schefzik, Thorarinsdottir & Gneiting
    2013, Stat. Sci. 28:616): the calibrated members of each lead are put in
    the rank order of the process-model members at that lead, so that each
@@ -30,11 +34,17 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import optimize, special
 
 from assimilation.scores import LOG_FLOOR_UGL
 
 #: Bounds of the spread factor [-] (a record of a few weeks cannot justify more).
 SPREAD_FACTOR_BOUNDS = (0.5, 4.0)
+#: Bound on the fitted mean log error [log units] (a factor of e either way).
+BIAS_BOUND_LN = 1.0
+#: Bound on the weight logits (weights down to about e^-16 of the largest; Bloomline's choice).
+LOGIT_BOUND = 8.0
+_SQRT_PI = np.sqrt(np.pi)
 
 
 @dataclass(frozen=True)
@@ -52,30 +62,25 @@ def plotting_positions(m: int) -> np.ndarray:
     return (np.arange(1, m + 1) - 0.5) / m
 
 
-def linear_pool(log_members: dict[str, np.ndarray], weights: dict[str, float], m: int) -> np.ndarray:
-    """The weighted mixture of the components' members (log) read at the ``m`` plotting positions (m,).
+def quantile_average(log_members: dict[str, np.ndarray], weights: dict[str, float], m: int) -> np.ndarray:
+    """The weighted average of the components' quantiles (log) at the ``m`` plotting positions (m,).
 
-    Each member of component c carries weight w_c / M_c; the mixture's quantile
-    at p is read from the weighted empirical distribution function (members at
-    their Hazen positions within their component, so one component of m
-    members gives back exactly its order statistics).
+    Each component's sorted members stand at their own Hazen positions; its
+    quantile at p is read by linear interpolation (held at the end members
+    beyond them), so one component of m members gives back exactly its order
+    statistics. Weights are renormalised over the components given.
     """
     total = sum(weights.get(c, 0.0) for c in log_members)
     if total <= 0:
         raise ValueError("the blend needs a positive weight on at least one component it is given")
-    values, cdf_weights = [], []
+    p = plotting_positions(m)
+    out = np.zeros(m)
     for name, z in log_members.items():
         w = weights.get(name, 0.0) / total
         if w > 0:
             z = np.sort(np.asarray(z, dtype=float))
-            values.append(z)
-            cdf_weights.append(np.full(z.size, w / z.size))
-    v = np.concatenate(values)
-    w = np.concatenate(cdf_weights)
-    order = np.argsort(v, kind="stable")
-    v, w = v[order], w[order]
-    positions = np.cumsum(w) - 0.5 * w          # Hazen positions of the weighted members
-    return np.interp(plotting_positions(m), positions, v)
+            out += w * np.interp(p, plotting_positions(z.size), z)
+    return out
 
 
 def calibrate(z: np.ndarray, bias_ln: float, spread_factor: float) -> np.ndarray:
@@ -96,7 +101,7 @@ def ecc_order(values: np.ndarray, template: np.ndarray) -> np.ndarray:
 
 def blend(components: dict[str, np.ndarray], process: str, settings: list[LeadSettings],
           floor_ugL: float = LOG_FLOOR_UGL) -> tuple[np.ndarray, np.ndarray]:
-    """The blended members and the uncalibrated pool, both (K + 1, M) [µg/L].
+    """The blended members and the uncalibrated quantile average, both (K + 1, M) [µg/L].
 
     ``components`` maps a forecaster to its member daily means (K + 1, M_c);
     ``process`` names the process-model ensemble, whose members give the
@@ -117,28 +122,87 @@ def blend(components: dict[str, np.ndarray], process: str, settings: list[LeadSe
         s = settings[k - 1]
         if process not in logs:
             raise ValueError(f"the process ensemble {process!r} has no finite members at lead {k}")
-        weights = {c: w for c, w in s.weights.items() if c in logs} or {process: 1.0}
-        z = linear_pool(logs, weights, M)
+        weights = {c: w for c, w in s.weights.items() if c in logs and w > 0} or {process: 1.0}
+        z = quantile_average(logs, weights, M)
         raw[k] = np.exp(ecc_order(z, logs[process]))
         out[k] = np.exp(ecc_order(calibrate(z, s.bias_ln, s.spread_factor), logs[process]))
     return out, raw
 
 
-def inverse_crps_weights(mean_crps: dict[str, float], counts: dict[str, int], prior: dict[str, float],
-                         prior_weight: float) -> dict[str, float]:
-    """Weights ∝ 1/CRPS² from each component's record, shrunk towards ``prior`` [-].
+def crps_normal(mu, sigma, y) -> np.ndarray:
+    """CRPS of N(mu, sigma²) for observation y (Gneiting et al. 2005, eq. 5), in the units of y."""
+    mu, sigma, y = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (mu, sigma, y)))
+    z = (y - mu) / sigma
+    return sigma * (z * special.erf(z / np.sqrt(2.0)) + 2.0 * _pdf(z) - 1.0 / _SQRT_PI)
 
-    With n verified days in common the record's weights count n/(n + prior_weight);
-    components without a record keep their prior share. Weights sum to one.
+
+def _pdf(z):
+    return np.exp(-0.5 * z * z) / np.sqrt(2.0 * np.pi)
+
+
+def _unpack(theta: np.ndarray, c: int):
+    logits, a, log_s = theta[:c], theta[c], theta[c + 1]
+    w = np.exp(logits - logits.max())
+    return w / w.sum(), a, np.exp(log_s)
+
+
+def combination_objective(theta: np.ndarray, mu: np.ndarray, sd: np.ndarray, y: np.ndarray) -> tuple[float, np.ndarray]:
+    """Mean CRPS [log units] of N(Σ w μ − a, (s Σ w σ)²) over the cases, and its gradient in ``theta``.
+
+    ``theta`` = (weight logits (C,), a, ln s); ``mu``, ``sd`` (N, C) the
+    components' log mean and sd; ``y`` (N,) the observed log values. The
+    gradient uses ∂CRPS/∂μ = −erf(z/√2) and ∂CRPS/∂σ = 2φ(z) − 1/√π
+    (z = (y − μ)/σ), from eq. 5 of Gneiting et al. (2005).
     """
-    names = sorted(set(prior) | set(mean_crps))
-    record = {c: 1.0 / mean_crps[c] ** 2 for c in names if mean_crps.get(c, 0) > 0 and np.isfinite(mean_crps[c])}
-    n = min((counts.get(c, 0) for c in record), default=0)
-    total = sum(record.values())
-    w_rec = {c: record.get(c, 0.0) / total for c in names} if total > 0 else dict.fromkeys(names, 0.0)
-    p_total = sum(prior.get(c, 0.0) for c in names)
-    w_prior = {c: prior.get(c, 0.0) / p_total for c in names} if p_total > 0 else dict.fromkeys(names, 0.0)
-    a = n / (n + prior_weight) if total > 0 else 0.0
-    w = {c: a * w_rec[c] + (1 - a) * w_prior[c] for c in names}
-    s = sum(w.values())
-    return {c: v / s for c, v in w.items() if v > 0}
+    c = mu.shape[1]
+    w, a, s = _unpack(theta, c)
+    mbar, sbar = mu @ w, sd @ w
+    m, sig = mbar - a, s * sbar
+    z = (y - m) / sig
+    erf = special.erf(z / np.sqrt(2.0))
+    crps = sig * (z * erf + 2.0 * _pdf(z) - 1.0 / _SQRT_PI)
+    d_m, d_sig = -erf, 2.0 * _pdf(z) - 1.0 / _SQRT_PI
+    n = y.size
+    grad = np.empty(c + 2)
+    # softmax: ∂(Σ w x)/∂θ_k = w_k (x_k − Σ w x)
+    grad[:c] = w * ((d_m[:, None] * (mu - mbar[:, None])).sum(axis=0)
+                    + s * (d_sig[:, None] * (sd - sbar[:, None])).sum(axis=0)) / n
+    grad[c] = -d_m.sum() / n
+    grad[c + 1] = (d_sig * sig).sum() / n
+    return float(crps.mean()), grad
+
+
+def fit_combination(mu: np.ndarray, sd: np.ndarray, y: np.ndarray, prior: np.ndarray) -> tuple[np.ndarray, float, float]:
+    """(weights (C,), mean log error a, spread factor s) minimising the mean CRPS of the calibrated
+    quantile average over the cases (minimum-CRPS estimation, Gneiting et al. 2005).
+
+    ``mu``, ``sd`` (N, C) are the components' member mean and sd of log
+    chlorophyll-a, ``y`` (N,) the observed log values; the search starts at
+    the ``prior`` weights, no bias and no spread change (L-BFGS-B, bounded).
+    """
+    mu, sd, y = (np.asarray(a, dtype=float) for a in (mu, sd, y))
+    c = mu.shape[1]
+    prior = np.asarray(prior, dtype=float)
+    start = np.concatenate([np.log(np.maximum(prior / prior.sum(), 1e-6)), [0.0, 0.0]])
+    lo, hi = SPREAD_FACTOR_BOUNDS
+    bounds = [(-LOGIT_BOUND, LOGIT_BOUND)] * c + [(-BIAS_BOUND_LN, BIAS_BOUND_LN), (np.log(lo), np.log(hi))]
+    res = optimize.minimize(combination_objective, start, args=(mu, np.maximum(sd, 1e-6), y), jac=True,
+                            method="L-BFGS-B", bounds=bounds)
+    w, a, s = _unpack(res.x, c)
+    return w, float(a), float(s)
+
+
+def shrink_settings(names: list[str], fitted: tuple[np.ndarray, float, float], prior: dict[str, float],
+                    n: int, prior_cases: int) -> LeadSettings:
+    """Fitted settings shrunk towards the prior (``prior`` weights, no bias, no spread change):
+    with ``n`` cases the fit counts n/(n + ``prior_cases``); weights are mixed linearly, the
+    bias scaled and the spread factor mixed in its logarithm. Weights sum to one."""
+    w_fit, a, s = fitted
+    alpha = n / (n + prior_cases)
+    keys = sorted(set(names) | set(prior))
+    p_total = sum(prior.values())
+    fit = dict(zip(names, w_fit))
+    w = {k: alpha * fit.get(k, 0.0) + (1 - alpha) * prior.get(k, 0.0) / p_total for k in keys}
+    total = sum(w.values())
+    return LeadSettings({k: v / total for k, v in w.items() if v > 0}, bias_ln=alpha * a,
+                        spread_factor=float(np.exp(alpha * np.log(s))))

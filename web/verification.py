@@ -14,11 +14,12 @@ import pandas as pd
 from flask import Blueprint, Response, abort, jsonify, render_template, request
 
 from monitor.alerting.caution import CAUTION
-from monitor.verification.live import record_summary
+from monitor.verification.live import latest_blend, record_summary
 from monitor.verification.reliability import alert_quantity, history, reliability
 from monitor.verification.report import records
 from web import get_engine, water_body_or_404
 from web import verification_plots as plots
+from web.formatting import zone
 
 verification = Blueprint("verification", __name__)
 
@@ -80,7 +81,16 @@ def verification_api(water_body_id: str):
         return Response(buf.getvalue(), mimetype="text/csv")
     return jsonify({"water_body": wb.id, "caution": CAUTION, "pairs": int(len(summary["records"])),
                     "by_lead": records(summary["by_lead"]), "skill_by_lead": records(summary["skill_by_lead"]),
-                    "rank_histogram": summary["rank_histogram"], "reliability": summary["reliability"]})
+                    "rank_histogram": summary["rank_histogram"], "reliability": summary["reliability"],
+                    "blend": _blend(wb)})
+
+
+def _blend(wb) -> dict | None:
+    """The newest run's blend settings, with the analysis time as ISO 8601."""
+    blend = latest_blend(get_engine(), wb.id)
+    if blend is not None:
+        blend["analysis_utc"] = blend["analysis_utc"].isoformat()
+    return blend
 
 
 @verification.get("/water-bodies/<water_body_id>/verification")
@@ -95,7 +105,21 @@ def verification_page(water_body_id: str):
                            skill=records(table), references=[c for c in table.columns
                                                              if c not in ("quantity", "lead_days")],
                            rank_histogram=summary["rank_histogram"], reliability=summary["reliability"],
-                           alert_quantity=alert_quantity(summary["records"]))
+                           alert_quantity=alert_quantity(summary["records"]), blend=_blend_rows(wb),
+                           tz=zone(wb.timezone))
+
+
+def _blend_rows(wb) -> dict | None:
+    """The newest run's blend as table rows: quantity, lead, one weight per component, bias, spread."""
+    blend = latest_blend(get_engine(), wb.id)
+    if blend is None:
+        return None
+    components = sorted({c for leads in blend["by_quantity"].values() for e in leads for c in e["weights"]})
+    rows = [dict(quantity=q, lead_days=e["lead_days"], bias_ln=e["bias_ln"], spread_factor=e["spread_factor"],
+                 **{c: e["weights"].get(c, 0.0) for c in components})
+            for q, leads in sorted(blend["by_quantity"].items()) for e in leads]
+    return {"analysis_utc": blend["analysis_utc"], "published": blend.get("published", True),
+            "components": components, "rows": rows}
 
 
 @verification.get("/water-bodies/<water_body_id>/verification/<chart>.png")

@@ -224,7 +224,7 @@ class FilterSettings:
     assimilate_suspect: bool = False
     spin_up_cycles: int = 7  # cycles after a cold start before alert rules are evaluated
     late_window_days: float = 14.0  # late readings up to this old are re-analysed; older ones are reported
-    published: str = "process_model"  # the forecast published: "process_model" or the calibrated "blend"
+    published: str = "blend"  # the forecast published: the calibrated "blend" or the "process_model" alone
     options: Mapping[str, Any] = field(default_factory=dict)  # passed to assimilation FilterConfig
 
 

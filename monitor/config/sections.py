@@ -127,7 +127,7 @@ def read_filter(fr: Reader) -> FilterSettings:
                           assimilate_suspect=fr.get("assimilate_suspect", bool, False),
                           spin_up_cycles=fr.get("spin_up_cycles", int, 7),
                           late_window_days=fr.positive("late_window_days", 14.0),
-                          published=fr.choice("published", ("process_model", "blend"), "process_model"),
+                          published=fr.choice("published", ("process_model", "blend"), "blend"),
                           options=options)
     if filt.spin_up_cycles < 0:
         raise fr.error("spin_up_cycles", f"expected 0 or more, got {filt.spin_up_cycles}")

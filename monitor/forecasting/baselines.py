@@ -44,7 +44,7 @@ def series_forecasts(chl: Series, temperature: Series | None, origin_d: float,
         "persistence": baselines.persistence(grid, values, origin_d, horizon).members_ugL,
         "persistence_ensemble": baselines.persistence_ensemble(grid, values, origin_d, horizon).members_ugL,
         "climatology": None if np.all(np.isnan(climatology)) else climatology,
-        "statistical": baselines.ar1_forecast(grid, values, origin_d, horizon, temperature_C=temp).members_ugL,
+        "statistical": baselines.ar_average_forecast(grid, values, origin_d, horizon, temperature_C=temp).members_ugL,
     }
 
 

@@ -2,24 +2,22 @@
 
 Per chlorophyll quantity and lead day, from the score records
 (:mod:`monitor.verification.live`) whose days ended in the ``RECORD_DAYS``
-before the analysis, pooled over the water body's basins:
+before the analysis, pooled over the water body's basins: the cases are the
+runs in which every component in use was verified on the same day (a
+component verified in fewer than half of the cases is left out of the fit).
+On those cases the component weights, the mean log error and the spread
+factor are fitted together by minimum-CRPS estimation
+(:func:`assimilation.blend.fit_combination`; EMOS, Gneiting et al. 2005),
+then shrunk towards the priors with the weight of ``PRIOR_DAYS`` cases
+(:func:`assimilation.blend.shrink_settings`).
 
-* component weights ∝ 1/CRPS² of each component's record, shrunk towards
-  ``PRIOR_WEIGHTS`` with the weight of ``PRIOR_DAYS`` verified days
-  (:func:`assimilation.blend.inverse_crps_weights`);
-* the uncalibrated blend's (``blend_raw``) mean log error, and the factor on
-  its log spread that makes its central 90 % interval cover 90 % of its
-  record: the 90th percentile of |log error − mean log error| / (log spread ·
-  sqrt((M + 1)/M)) divided by the normal quantile 1.645 (coverage matching, the
-  aim of EMOS; Gneiting et al. 2005), both shrunk towards no correction in the
-  same way.
-
-With no record yet the documented priors apply: the process model and the
-two statistical forecasts in the proportions of ``PRIOR_WEIGHTS`` (Bloomline's
-choice: the process model alone was measured to lose to persistence, the
-statistical forecasts to be close to it; the record takes over within weeks),
-no bias correction, no spread change. Only records of days that ended at or
-before the analysis are read, so a hindcast stays free of look-ahead.
+With fewer than ``MIN_CASES`` cases the documented priors apply: the process
+model and the two statistical forecasts in the proportions of
+``PRIOR_WEIGHTS`` (Bloomline's choice: the process model alone was measured
+to lose to persistence, the statistical forecasts to be close to it; the
+record takes over within weeks), no bias correction, no spread change. Only
+records of days that ended at or before the analysis are read, so a hindcast
+stays free of look-ahead.
 """
 
 from __future__ import annotations
@@ -30,7 +28,7 @@ import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
-from assimilation.blend import LeadSettings, inverse_crps_weights
+from assimilation.blend import LeadSettings, fit_combination, shrink_settings
 from assimilation.scores import LOG_FLOOR_UGL
 from monitor.config import WaterBodyConfig
 from monitor.forecasting.history import OBSERVED_BY
@@ -38,44 +36,45 @@ from monitor.forecasting.history import OBSERVED_BY
 PROCESS = "process_model"
 BLEND = "blend"
 UNCALIBRATED = "blend_raw"
-#: The forecasters the blend may combine (the one-member persistence forecast is not a distribution).
-COMPONENTS = (PROCESS, "persistence_ensemble", "statistical", "climatology")
+#: The forecasters the blend may combine (the one-member persistence forecast is not a distribution;
+#: the day-of-year climatology needs earlier years and was far less skilful where it had them).
+COMPONENTS = (PROCESS, "persistence_ensemble", "statistical")
 PRIOR_WEIGHTS = {PROCESS: 0.4, "persistence_ensemble": 0.3, "statistical": 0.3}
 PRIOR_DAYS = 20
 RECORD_DAYS = 60
-#: The central interval whose coverage the calibration matches, and its standard normal half-width.
-COVERAGE = 0.90
-NORMAL_Z_95 = 1.6448536269514722
+#: Cases (verified days with every component) needed before the record is fitted at all.
+MIN_CASES = 10
+#: Share of the cases a component must be verified in to take part in the fit.
+MIN_COMPONENT_SHARE = 0.5
+
+_PRIOR = LeadSettings(dict(PRIOR_WEIGHTS))
 
 
-def _shrink(n: int) -> float:
-    return n / (n + PRIOR_DAYS)
+def cases(records: pd.DataFrame) -> tuple[list[str], pd.DataFrame, pd.DataFrame, np.ndarray]:
+    """(components, log means (N, C), log sds (N, C), observed log values (N,)) of one quantity and
+    lead: one row per (run, basin) in which every component kept was verified."""
+    comp = records[records.forecaster.isin(COMPONENTS) & records.log_sd.notna() & records.log_mean.notna()]
+    if comp.empty:
+        return [], pd.DataFrame(), pd.DataFrame(), np.empty(0)
+    key = ["run_id", "basin_id"]
+    mu = comp.pivot_table(index=key, columns="forecaster", values="log_mean", aggfunc="first")
+    sd = comp.pivot_table(index=key, columns="forecaster", values="log_sd", aggfunc="first")
+    obs = comp.groupby(key)["observed"].first()
+    share = mu.notna().mean()
+    names = [c for c in COMPONENTS if c in mu.columns and share[c] >= MIN_COMPONENT_SHARE]
+    rows = mu[names].notna().all(axis=1) & sd[names].notna().all(axis=1)
+    y = np.log(np.maximum(obs[rows].to_numpy(float), LOG_FLOOR_UGL))
+    return names, mu.loc[rows, names], sd.loc[rows, names], y
 
 
 def lead_settings(records: pd.DataFrame) -> LeadSettings:
     """The blend of one lead from its records (one quantity, one lead)."""
-    comp = records[records.forecaster.isin(COMPONENTS)]
-    stats = comp.groupby("forecaster").crps.agg(["mean", "size"])
-    raw = records[(records.forecaster == UNCALIBRATED) & records.log_sd.notna()]
-    return _settings(stats, raw)
-
-
-def _settings(stats: pd.DataFrame, raw: pd.DataFrame) -> LeadSettings:
-    """Weights from the components' (mean CRPS, count) and calibration from the uncalibrated blend's records."""
-    weights = inverse_crps_weights(stats["mean"].to_dict(), stats["size"].to_dict(), PRIOR_WEIGHTS, PRIOR_DAYS)
-    if len(raw) < 2:
-        return LeadSettings(weights)
-    err = raw.log_mean.to_numpy(float) - np.log(np.maximum(raw.observed.to_numpy(float), LOG_FLOOR_UGL))
-    m = raw["members"].to_numpy(float)
-    bias = float(err.mean())
-    sd = raw.log_sd.to_numpy(float) * np.sqrt((m + 1) / m)
-    ok = sd > 0
-    a = _shrink(len(raw))
-    if not ok.any():
-        return LeadSettings(weights, bias_ln=a * bias)
-    ratio = float(np.quantile(np.abs(err[ok] - bias) / sd[ok], COVERAGE)) / NORMAL_Z_95
-    factor = float(np.exp(a * np.log(ratio))) if ratio > 0 else 1.0
-    return LeadSettings(weights, bias_ln=a * bias, spread_factor=factor)
+    names, mu, sd, y = cases(records)
+    if len(y) < MIN_CASES or not names:
+        return _PRIOR
+    prior = np.array([PRIOR_WEIGHTS.get(c, 0.0) for c in names]) + 1e-3
+    fitted = fit_combination(mu.to_numpy(), sd.to_numpy(), y, prior)
+    return shrink_settings(names, fitted, PRIOR_WEIGHTS, len(y), PRIOR_DAYS)
 
 
 def blend_settings(records: pd.DataFrame, analysis: dt.datetime, horizon: int) -> dict[str, list[LeadSettings]]:
@@ -83,19 +82,11 @@ def blend_settings(records: pd.DataFrame, analysis: dt.datetime, horizon: int) -
     if len(records):
         records = records[(records.valid_utc <= pd.Timestamp(analysis))
                           & (records.valid_utc > pd.Timestamp(analysis) - pd.Timedelta(days=RECORD_DAYS))]
-    empty_stats = pd.DataFrame({"mean": pd.Series(dtype=float), "size": pd.Series(dtype=int)})
     out = {}
     for quantity in OBSERVED_BY:
         sub = records[records.quantity == quantity] if len(records) else records
-        if not len(sub):
-            out[quantity] = [LeadSettings(inverse_crps_weights({}, {}, PRIOR_WEIGHTS, PRIOR_DAYS))] * horizon
-            continue
-        comp = sub[sub.forecaster.isin(COMPONENTS)].groupby(["lead_days", "forecaster"]).crps.agg(["mean", "size"])
-        raw = sub[(sub.forecaster == UNCALIBRATED) & sub.log_sd.notna()]
-        raw_by_lead = dict(tuple(raw.groupby("lead_days")))
-        leads = set(comp.index.get_level_values(0))
-        out[quantity] = [_settings(comp.loc[k] if k in leads else empty_stats, raw_by_lead.get(k, raw.iloc[:0]))
-                         for k in range(1, horizon + 1)]
+        by_lead = dict(tuple(sub.groupby("lead_days"))) if len(sub) else {}
+        out[quantity] = [lead_settings(by_lead[k]) if k in by_lead else _PRIOR for k in range(1, horizon + 1)]
     return out
 
 

@@ -87,7 +87,7 @@ class CycleInputs:
     #: late readings taken in (or left out), in words, for the run's message
     late_note: str = ""
     #: publish the calibrated blend instead of the process model (``[filter] published``)
-    publish_blend: bool = False
+    publish_blend: bool = True
     #: basin id of each chlorophyll sensor whose gain the filter estimates (gain columns in order)
     sensor_basins: tuple[str, ...] = ()
 
@@ -291,9 +291,21 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
     published, verified_members = publish(forecasts, issued_baselines, inputs.basin_ids, verified_by, sensor_gain,
                                           inputs.blend, {alerts.QUANTITY: inputs.thresholds_ugL},
                                           publish_blend=inputs.publish_blend)
+    diagnostics = _jsonable(result.diagnostics)
+    diagnostics["blend"] = blend_diagnostics(inputs.blend, inputs.publish_blend)
     return CycleOutputs(inputs.water_body_id, inputs.analysis_d, status, message,
-                        result.checkpoint.to_bytes(), _jsonable(result.diagnostics), published, inputs.basin_ids,
+                        result.checkpoint.to_bytes(), diagnostics, published, inputs.basin_ids,
                         issued_baselines + verified_members)
+
+
+def blend_diagnostics(settings: dict, published: bool) -> dict:
+    """The blend's settings of this run, for the run's diagnostics: per chlorophyll quantity and
+    lead day the component weights, the mean log error removed and the spread factor."""
+    return {"published": published,
+            "by_quantity": {q: [{"lead_days": k, "weights": {c: round(w, 4) for c, w in sorted(s.weights.items())},
+                                 "bias_ln": round(s.bias_ln, 4), "spread_factor": round(s.spread_factor, 4)}
+                                for k, s in enumerate(leads, start=1)]
+                            for q, leads in settings.items()}}
 
 
 def _basin_sensor_gains(gains: np.ndarray, sensor_basins: tuple[str, ...], basin_ids) -> dict:

@@ -11,10 +11,8 @@ verification is multiplied back, so each is scored against what the sensor
 reads. Besides the published members (``bloomline``), the process model's
 own (``process_model``), the calibrated blend (``blend``) and the uncalibrated
 blend (``blend_raw``, from which the calibration is learnt) are stored for
-verification. Which of the process model and the blend is published is the
-``[filter] published`` setting (default the process model: on the demo the
-blend, though more skilful on average, warned of the first crossing of Alert
-Level 1 four days later).
+verification. Which of the blend and the process model is published is the
+``[filter] published`` setting (default the blend).
 """
 
 from __future__ import annotations
@@ -31,7 +29,7 @@ GAIN_VARIABLES = ("chlorophyll_fluorescence",)
 
 def publish(forecasts: dict[str, DailyForecast], baselines: list, basin_ids: tuple[str, ...],
             verified_by: dict, sensor_gain: dict, settings: dict[str, list[LeadSettings]],
-            thresholds: dict[str, tuple[float, ...]], publish_blend: bool = False
+            thresholds: dict[str, tuple[float, ...]], publish_blend: bool = True
             ) -> tuple[dict[str, DailyForecast], list]:
     """(published forecasts by quantity, member rows for verification).
 

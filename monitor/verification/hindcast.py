@@ -47,6 +47,8 @@ class HindcastResult:
     by_basin: pd.DataFrame
     skill_by_lead: pd.DataFrame
     warnings: pd.DataFrame
+    #: the alert level in force after each replayed cycle: analysis_utc, water_body, basin_id, level
+    levels: pd.DataFrame
     statuses: dict[str, int]
     seconds: float
 
@@ -106,4 +108,6 @@ def run_hindcast(config: Config, engine: Engine, days: list[dt.datetime], *, onl
         by_basin=summary.score_table(records, ["water_body", "basin_id", "quantity", "lead_days"], levels, warn),
         skill_by_lead=summary.skill_table(records, ["quantity", "lead_days"]),
         warnings=warning_table(bodies, replayed, pairs.observed, pairs.outlooks),
+        levels=pd.DataFrame([(d.analysis, wb, basin, lv) for d in replayed for (wb, basin), lv in d.levels.items()],
+                            columns=["analysis_utc", "water_body", "basin_id", "level"]),
         statuses=statuses, seconds=time.perf_counter() - started)

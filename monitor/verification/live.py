@@ -96,3 +96,17 @@ def record_summary(engine: Engine, wb: WaterBodyConfig, since: dt.datetime | Non
         "skill_by_lead": summary.skill_table(records, ["quantity", "lead_days"]),
         "rank_histogram": summary.rank_histogram(records),
     }
+
+
+def latest_blend(engine: Engine, water_body_id: str) -> dict | None:
+    """The blend settings (component weights, bias, spread factor per quantity and lead) of the
+    water body's newest run that has them, with that run's analysis time; None before any."""
+    t = schema.forecast_runs
+    q = (select(t.c.analysis_utc, t.c.diagnostics).where(t.c.water_body_id == water_body_id)
+         .order_by(t.c.analysis_utc.desc()).limit(5))
+    with engine.connect() as conn:
+        for analysis, diagnostics in conn.execute(q):
+            blend = (diagnostics or {}).get("blend")
+            if blend and blend.get("by_quantity"):
+                return {"analysis_utc": analysis, **blend}
+    return None

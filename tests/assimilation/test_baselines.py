@@ -92,6 +92,33 @@ def test_ar1_on_a_gap_free_series_matches_statsmodels_autoreg():
                                rtol=1e-8)
 
 
+@pytest.mark.parametrize("order", [2, 3])
+def test_ar_of_higher_order_on_a_gap_free_series_matches_statsmodels_autoreg(order):
+    days, z, temp = _simulated_ar1(seed=11, n=600, c=0.4, phi=0.7, beta=0.04, sigma=0.25)
+    origin = 500
+    fc = bl.ar_forecast(days, np.exp(z), days[origin], HORIZON, order=order, temperature_C=temp)
+    assert fc.method == f"ar{order}"
+    # reference: statsmodels AutoReg (OLS on the same lags), its dynamic forecast and prediction variance
+    direct = AutoReg(z[: origin + 1], lags=order, trend="c", exog=temp[: origin + 1]).fit()
+    held = np.full((HORIZON, 1), temp[origin])
+    log_members = _log_members(fc)
+    np.testing.assert_allclose(log_members.mean(axis=0), direct.forecast(HORIZON, exog=held), atol=1e-8)
+    prediction = direct.get_prediction(start=origin + 1, end=origin + HORIZON, exog_oos=held)
+    sd = np.sqrt(prediction.var_pred_mean * direct.nobs / (direct.nobs - direct.params.size))
+    np.testing.assert_allclose((log_members[-1] - log_members[0]) / _spread_width(log_members.shape[0]), sd,
+                               rtol=1e-8)
+
+
+def test_the_order_average_is_the_quantile_average_of_the_orders():
+    days, z, temp = _simulated_ar1(seed=12, n=300, c=0.4, phi=0.7, beta=0.04, sigma=0.25)
+    origin = 250
+    each = [_log_members(bl.ar_forecast(days, np.exp(z), days[origin], HORIZON, order=p, temperature_C=temp))
+            for p in bl.AVERAGED_ORDERS]
+    avg = bl.ar_average_forecast(days, np.exp(z), days[origin], HORIZON, temperature_C=temp)
+    assert avg.method == "ar_average"
+    np.testing.assert_allclose(_log_members(avg), np.mean(each, axis=0), atol=1e-10)
+
+
 def test_ar1_on_a_gap_free_series_without_temperature_and_with_a_temperature_forecast_matches_autoreg():
     days, z, temp = _simulated_ar1(seed=2, n=400, c=0.2, phi=0.6, beta=0.05, sigma=0.3)
     origin = 350

@@ -1,4 +1,4 @@
-"""The calibrated blend: quantile averaging, calibration on a record, ensemble copula coupling."""
+"""The calibrated blend: quantile averaging, minimum-CRPS calibration on a record, ensemble copula coupling."""
 
 from __future__ import annotations
 
@@ -19,14 +19,81 @@ def test_a_process_only_blend_without_correction_returns_the_process_members_in_
     np.testing.assert_allclose(raw, process, rtol=1e-12)
 
 
-def test_the_linear_pool_of_two_normals_has_the_mixture_distribution():
-    # a linear pool is the weighted mixture: F(x) = 0.25·Φ((x−1)/0.5) + 0.75·Φ((x−3)/1.5) (scipy.stats.norm)
-    m = 4000
+def test_the_quantile_average_of_two_normals_is_the_normal_with_averaged_mean_and_sd():
+    # Vincentization of N(1, 0.5²) and N(3, 1.5²) with weights 0.25/0.75 is N(2.5, 1.25²) (scipy.stats.norm)
+    m = 400
     p = bl.plotting_positions(m)
     a, b = stats.norm.ppf(p, 1.0, 0.5), stats.norm.ppf(p, 3.0, 1.5)
-    z = bl.linear_pool({"a": a, "b": b}, {"a": 0.25, "b": 0.75}, m)
-    mixture_cdf = 0.25 * stats.norm.cdf(z, 1.0, 0.5) + 0.75 * stats.norm.cdf(z, 3.0, 1.5)
-    np.testing.assert_allclose(mixture_cdf, p, atol=2e-3)
+    z = bl.quantile_average({"a": a, "b": b}, {"a": 0.25, "b": 0.75}, m)
+    np.testing.assert_allclose(z, stats.norm.ppf(p, 2.5, 1.25), atol=1e-9)
+
+
+def test_the_quantile_average_of_different_member_counts_reads_each_at_the_plotting_positions():
+    m = 60
+    one = np.linspace(0.0, 1.0, 60)
+    z = bl.quantile_average({"a": one, "b": one[::3]}, {"a": 1.0, "b": 1.0}, m)
+    assert np.all(np.diff(z) >= 0) and z.min() >= 0.0 and z.max() <= 1.0
+    np.testing.assert_allclose(bl.quantile_average({"a": one[::-1]}, {"a": 2.0}, m), one)
+
+
+def test_the_crps_of_a_quantile_average_is_at_most_the_weighted_mean_crps_of_its_components():
+    """CRPS = 2∫QS_τ dτ and each quantile score is convex in the quantile (Lichtendahl et al. 2013)."""
+    rng = np.random.default_rng(5)
+    m = 80
+    for _ in range(50):
+        a, b = rng.normal(0, 1, m), rng.normal(rng.normal(0, 2), rng.uniform(0.2, 3), m)
+        w = rng.uniform(0.05, 0.95)
+        y = rng.normal(0, 2)
+        z = bl.quantile_average({"a": a, "b": b}, {"a": w, "b": 1 - w}, m)
+        crps = lambda e: float(scores.crps_ensemble(e[:, None], np.array([y]))[0])  # noqa: E731
+        assert crps(z) <= w * crps(a) + (1 - w) * crps(b) + 1e-9
+
+
+def test_the_closed_form_normal_crps_matches_properscoring():
+    import properscoring
+
+    rng = np.random.default_rng(6)
+    mu, sig, y = rng.normal(size=200), rng.uniform(0.1, 3.0, 200), rng.normal(size=200) * 2
+    np.testing.assert_allclose(bl.crps_normal(mu, sig, y), properscoring.crps_gaussian(y, mu, sig), rtol=1e-10)
+
+
+def test_the_objective_gradient_matches_finite_differences():
+    from scipy.optimize import check_grad
+
+    rng = np.random.default_rng(7)
+    mu, sd, y = rng.normal(size=(120, 3)), rng.uniform(0.1, 1.0, (120, 3)), rng.normal(size=120)
+    theta = np.array([0.3, -0.5, 0.1, 0.2, np.log(1.3)])
+    err = check_grad(lambda t: bl.combination_objective(t, mu, sd, y)[0],
+                     lambda t: bl.combination_objective(t, mu, sd, y)[1], theta)
+    assert err < 1e-6
+
+
+def test_the_fitted_combination_finds_the_informative_component_and_the_bias():
+    """Synthetic truth: y = x + N(0, 0.3²); component "good" is centred on x + 0.2 (sd 0.3), "noise"
+    on pure noise (sd 1). Minimum-CRPS estimation (Gneiting et al. 2005) should put nearly all weight
+    on "good", learn the +0.2 bias, and give a spread factor near one."""
+    rng = np.random.default_rng(8)
+    n = 2000
+    x = rng.normal(0, 1, n)
+    y = x + rng.normal(0, 0.3, n)
+    mu = np.column_stack([x + 0.2, rng.normal(0, 1, n)])
+    sd = np.column_stack([np.full(n, 0.3), np.full(n, 1.0)])
+    w, a, s = bl.fit_combination(mu, sd, y, np.array([0.5, 0.5]))
+    assert w[0] > 0.9 and a == pytest.approx(0.2, abs=0.03)
+    # the combined sd s·(w·σ) should match the true error sd 0.3
+    assert s * (w @ sd[0]) == pytest.approx(0.3, abs=0.05)
+
+
+def test_shrinkage_gives_the_prior_without_cases_and_the_fit_with_many():
+    prior = {"process_model": 0.4, "persistence_ensemble": 0.3, "statistical": 0.3}
+    fitted = (np.array([0.0, 0.2, 0.8]), 0.3, 2.0)
+    names = ["process_model", "persistence_ensemble", "statistical"]
+    none = bl.shrink_settings(names, fitted, prior, 0, 20)
+    assert none.weights == pytest.approx(prior) and none.bias_ln == 0 and none.spread_factor == 1
+    many = bl.shrink_settings(names, fitted, prior, 10 ** 7, 20)
+    assert many.weights.get("process_model", 0.0) == pytest.approx(0.0, abs=1e-5)
+    assert many.weights["statistical"] == pytest.approx(0.8, abs=1e-5)
+    assert many.bias_ln == pytest.approx(0.3, abs=1e-5) and many.spread_factor == pytest.approx(2.0, abs=1e-4)
 
 
 def test_calibration_removes_the_bias_and_scales_the_spread_about_the_mean():
@@ -45,18 +112,6 @@ def test_ecc_gives_the_calibrated_values_the_rank_order_of_the_process_members()
     assert stats.spearmanr(out, template).statistic == pytest.approx(1.0)
 
 
-def test_inverse_crps_weights_follow_the_record_and_fall_back_to_the_prior():
-    prior = {"process_model": 0.4, "persistence_ensemble": 0.3, "statistical": 0.3}
-    assert bl.inverse_crps_weights({}, {}, prior, 20) == pytest.approx(prior)
-    w = bl.inverse_crps_weights({"process_model": 2.0, "persistence_ensemble": 1.0, "statistical": 1.0},
-                                {"process_model": 10_000, "persistence_ensemble": 10_000, "statistical": 10_000},
-                                prior, 20)
-    # weights ∝ 1/CRPS²: 1/4 : 1 : 1 → 1/9, 4/9, 4/9 once the record dominates the prior
-    assert w["process_model"] == pytest.approx(1 / 9, abs=2e-3)
-    assert w["statistical"] == pytest.approx(4 / 9, abs=2e-3)
-    assert sum(w.values()) == pytest.approx(1.0)
-
-
 def test_a_biased_overconfident_forecast_calibrated_on_its_record_covers_new_days_as_it_should():
     """A seeded synthetic check of the EMOS idea (Gneiting et al. 2005): learn the bias and spread of a
     forecaster on 300 days, apply them to 300 new days, and the 90 % interval covers ≈ 90 %."""
@@ -68,11 +123,12 @@ def test_a_biased_overconfident_forecast_calibrated_on_its_record_covers_new_day
     observed = np.exp(signal + rng.normal(0, 0.4, days))          # truth: log error sd 0.4
     members = np.exp(signal[:, None] - 0.3 + rng.normal(0, 0.1, (days, m)))   # biased low, far too narrow
     logm = np.log(members)
-    record = pd.DataFrame({"forecaster": "blend_raw", "members": m, "observed": observed[:300],
-                           "log_mean": logm[:300].mean(axis=1), "log_sd": logm[:300].std(axis=1, ddof=1),
-                           "crps": 1.0})
+    record = pd.DataFrame({"run_id": np.arange(300), "basin_id": "main", "forecaster": "process_model",
+                           "members": m, "observed": observed[:300], "log_mean": logm[:300].mean(axis=1),
+                           "log_sd": logm[:300].std(axis=1, ddof=1), "crps": 1.0})
     s = lead_settings(record)
-    assert s.bias_ln == pytest.approx(-0.3, abs=0.06)
+    assert s.weights["process_model"] > 0.9
+    assert s.bias_ln == pytest.approx(-0.3 * 300 / 320, abs=0.06)
     assert s.spread_factor > 2.5
     cal = np.exp(np.stack([bl.calibrate(z, s.bias_ln, s.spread_factor) for z in logm[300:]]))
     lo, hi = np.quantile(cal, [0.05, 0.95], axis=1)

@@ -12,10 +12,11 @@ Prints one JSON line per scenario: ``scenario``, ``seconds`` (the hindcast,
 after the ingest), ``ingest_seconds``, ``origins``, ``pairs``, and per
 quantity ``crps`` (per forecaster, leads 1–7, µg/L), Bloomline's
 ``skill_vs_persistence_ensemble`` and ``skill_vs_persistence``,
-``coverage_90``, ``bias_ln`` and ``mae_ln`` per lead, and ``mae_ln_persistence``.
+``coverage_90``, ``bias_ln`` and ``mae_ln`` per lead, and ``mae_ln_persistence``; Bloomline's
+``warning_leads`` at first crossings and its ``level_changes`` per basin.
 Goal for the demo: under 3 minutes on 2 cores.
 
-Run: ``python tests/benchmarks/bench_hindcast.py [--scenario demo|brackenfold|both]``
+Run: ``python tests/benchmarks/bench_hindcast.py [--scenario demo|brackenfold|both] [--records-out F.csv]``
 """
 
 from __future__ import annotations
@@ -71,7 +72,7 @@ def _table(result) -> dict:
     return out
 
 
-def run(scenario: str) -> dict:
+def run(scenario: str, records_out: Path | None = None) -> dict:
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         config = _setup(scenario, folder)
@@ -85,17 +86,38 @@ def run(scenario: str) -> dict:
         result = run_hindcast(config, engine, days)
         seconds = time.perf_counter() - t0
         engine.dispose()
+    if records_out is not None:
+        result.records.to_csv(records_out.with_name(f"{records_out.stem}_{scenario}{records_out.suffix}"), index=False)
     return {"scenario": scenario, "seconds": round(seconds, 1), "ingest_seconds": round(ingest_s, 1),
             "origins": len(days), "pairs": int(len(result.pairs.meta)), "statuses": result.statuses,
-            **_table(result)}
+            **_table(result), **_warnings(result)}
+
+
+def _warnings(result) -> dict:
+    """Bloomline's warning lead [d] at each first crossing, and the alert level's raises and clears
+    per basin, with the most in any 14-day window (a level raised and cleared more than twice in a
+    fortnight is flapping)."""
+    w = result.warnings
+    bl = w[w.forecaster == "bloomline"]
+    leads = [f"{r.water_body}/{r.basin_id} L{r.level} {r.crossing_utc:%Y-%m-%d}: {r.lead_days:g}"
+             for r in bl.itertuples()]
+    changes = {}
+    for (wb, basin), g in result.levels.sort_values("analysis_utc").groupby(["water_body", "basin_id"]):
+        t, lv = g.analysis_utc.tolist(), g.level.to_numpy()
+        when = [t[i + 1] for i in range(len(t) - 1) if lv[i] != lv[i + 1]]
+        worst = max((sum(1 for u in when if t <= u < t + dt.timedelta(days=14)) for t in when), default=0)
+        changes[f"{wb}/{basin}"] = {"changes": len(when), "most_in_14_days": worst}
+    return {"warning_leads": leads, "level_changes": changes}
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--scenario", choices=("demo", "brackenfold", "both"), default="both")
+    parser.add_argument("--records-out", type=Path, default=None,
+                        help="also write every score record to this CSV (the scenario's name is added to it)")
     args = parser.parse_args()
     for scenario in (("demo", "brackenfold") if args.scenario == "both" else (args.scenario,)):
-        print(json.dumps(run(scenario)), flush=True)
+        print(json.dumps(run(scenario, args.records_out)), flush=True)
 
 
 if __name__ == "__main__":

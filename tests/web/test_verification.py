@@ -49,6 +49,15 @@ def test_verification_api_gives_skill_by_lead_against_each_baseline_with_the_cau
     assert leads == set(range(1, 8))
     assert len(got["rank_histogram"]) == 61 and sum(got["rank_histogram"]) > 0  # 60 members: 61 ranks
     assert got["reliability"] and got["reliability"][0]["bins"]
+    # the newest run's blend: weights per component that sum to one at every lead, bias and spread
+    blend = got["blend"]
+    assert blend["published"] is True
+    leads = blend["by_quantity"]["total_chlorophyll"]
+    assert [e["lead_days"] for e in leads] == list(range(1, 8))
+    for e in leads:
+        assert set(e["weights"]) <= {"process_model", "persistence_ensemble", "statistical"}
+        assert sum(e["weights"].values()) == pytest.approx(1.0, abs=1e-3)
+        assert 0.5 <= e["spread_factor"] <= 4.0
 
 
 def test_verification_page_shows_the_record_and_its_charts(record_app):
@@ -56,6 +65,7 @@ def test_verification_page_shows_the_record_and_its_charts(record_app):
     assert page.status_code == 200
     html = page.get_data(as_text=True)
     assert CAUTION in html and "Skill by lead day" in html and "persistence ensemble" in html
+    assert "How the published forecast is made" in html and "weight: process model" in html
     for chart in ("crps-total_chlorophyll", "reliability-1?level=1", "history-main"):
         image = record_app.get(f"/water-bodies/brackenfold/verification/{chart.split('?')[0]}.png"
                                + ("?" + chart.split("?")[1] if "?" in chart else ""))
