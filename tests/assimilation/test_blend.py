@@ -45,8 +45,8 @@ def test_the_crps_of_a_quantile_average_is_at_most_the_weighted_mean_crps_of_its
         w = rng.uniform(0.05, 0.95)
         y = rng.normal(0, 2)
         z = bl.quantile_average({"a": a, "b": b}, {"a": w, "b": 1 - w}, m)
-        crps = lambda e: float(scores.crps_ensemble(e[:, None], np.array([y]))[0])  # noqa: E731
-        assert crps(z) <= w * crps(a) + (1 - w) * crps(b) + 1e-9
+        crps = [float(scores.crps_ensemble(e[:, None], np.array([y]))[0]) for e in (z, a, b)]
+        assert crps[0] <= w * crps[1] + (1 - w) * crps[2] + 1e-9
 
 
 def test_the_closed_form_normal_crps_matches_properscoring():
