@@ -248,6 +248,8 @@ DEFAULT_OBSERVATION_ERRORS = {
     "nitrate": ObservationErrorConfig(0.15, 10.0),
     "srp": ObservationErrorConfig(0.2, 1.0),
     "total_phosphorus": ObservationErrorConfig(0.15, 2.0),
+    "total_nitrogen": ObservationErrorConfig(0.15, 20.0),
+    "ammonium": ObservationErrorConfig(0.15, 5.0),  # added to nitrate in the DIN observation
 }
 
 

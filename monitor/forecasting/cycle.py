@@ -33,7 +33,7 @@ from assimilation.first_guess import (
 )
 from assimilation.forcing import member_drivers
 from assimilation.forecast import QUANTILES, daily_statistics, simulate_with_model_error
-from assimilation.observe import OBSERVABLE_KINDS, Observations
+from assimilation.observe import Observations
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 from monitor.alerting import rules as alerts
 from monitor.alerting import webhooks
@@ -44,6 +44,7 @@ from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
 from monitor.forecasting.late import late_restart
+from monitor.forecasting.observations import OBSERVED_VARIABLES, to_observations
 from monitor.forecasting.observed_level import latest_observed
 from monitor.forecasting.publish import publish
 from monitor.forecasting.quantities import QUANTITIES, quantity_series
@@ -105,26 +106,26 @@ def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
     if frame.empty:
         return frame
     basin_stations = {s.id for s in config.stations_of(wb.id) if s.basin is not None}
-    return frame[frame.station_id.isin(basin_stations) & frame.variable.isin(OBSERVABLE_KINDS)
+    return frame[frame.station_id.isin(basin_stations) & frame.variable.isin(OBSERVED_VARIABLES)
                  & (frame.time_utc > after)]
 
 
-def to_observations(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig) -> Observations:
-    """Stored readings → :class:`Observations` with per-variable error sd from the config."""
-    if frame.empty:
-        return Observations.empty()
-    basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations_of(wb.id) if s.basin}
-    sensors = chlorophyll_sensors(config, wb)
-    sensor_of = {sid: i for i, sid in enumerate(sensors)}
-    values = frame.value.to_numpy(dtype=float)
-    kinds = frame.variable.to_numpy(dtype=str)
-    fraction = np.array([config.observation_errors[k].fraction for k in kinds])
-    floor = np.array([config.observation_errors[k].floor for k in kinds])
-    sensor = np.array([sensor_of.get(s, -1) if k == "chlorophyll_fluorescence" else -1
-                       for s, k in zip(frame.station_id, kinds)], dtype=int)
-    return Observations(time_d=np.asarray(to_epoch_days(frame.time_utc)), kind=kinds,
-                        basin=frame.station_id.map(basin_of).to_numpy(dtype=int), sensor=sensor,
-                        value=values, error_sd=np.maximum(floor, fraction * np.abs(values)))
+def assimilable(engine: Engine, config: Config, wb: WaterBodyConfig, frame: pd.DataFrame, after: dt.datetime,
+                until: dt.datetime) -> pd.DataFrame:
+    """The plain readings of ``frame`` and the censored ones of the store that the filter may use in
+    (after, until], with columns ``censored`` and ``detection_limit``."""
+    plain = observations_frame(frame, config, wb, after).assign(censored=False, detection_limit=np.nan)
+    parts = [f for f in (plain, censored_frame(engine, config, wb, after, until)) if not f.empty]
+    return pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
+
+
+def censored_frame(engine: Engine, config: Config, wb: WaterBodyConfig, after: dt.datetime,
+                   until: dt.datetime) -> pd.DataFrame:
+    """The censored (below-detection) readings of ``wb``'s basins in (after, until], with their limits."""
+    stations = [s.id for s in config.stations_of(wb.id) if s.basin is not None]
+    frame = readings_frame(engine, stations=stations, variables=OBSERVED_VARIABLES, start=after, end=until,
+                           max_flag=0, include_censored=True)
+    return frame[frame.censored & (frame.time_utc > after)]
 
 
 def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: ModelSpec,
@@ -230,7 +231,7 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
         seed=config.filter.seed + sum(map(ord, wb.id)),
-        observations=to_observations(observations_frame(frame, config, wb, start), config, wb),
+        observations=to_observations(assimilable(engine, config, wb, frame, start, analysis), config, wb),
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),

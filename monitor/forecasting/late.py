@@ -6,8 +6,8 @@ import datetime as dt
 
 from sqlalchemy.engine import Engine
 
-from assimilation.observe import OBSERVABLE_KINDS
 from monitor.config import Config, WaterBodyConfig
+from monitor.forecasting.observations import OBSERVED_VARIABLES
 from monitor.store import runs as store
 from monitor.store.late import checkpoint_created, late_readings
 from monitor.timeutil import EPOCH
@@ -28,9 +28,9 @@ def late_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: 
     window_start = analysis - dt.timedelta(days=config.filter.late_window_days)
     stations = [s.id for s in config.stations_of(wb.id) if s.basin]
     max_flag = 3 if config.filter.assimilate_suspect else 1
-    n_all, _ = late_readings(engine, stations=stations, variables=OBSERVABLE_KINDS, start=EPOCH,
+    n_all, _ = late_readings(engine, stations=stations, variables=OBSERVED_VARIABLES, start=EPOCH,
                              covered_until=found[0], received_after=created, max_flag=max_flag)
-    n, earliest = late_readings(engine, stations=stations, variables=OBSERVABLE_KINDS, start=window_start,
+    n, earliest = late_readings(engine, stations=stations, variables=OBSERVED_VARIABLES, start=window_start,
                                 covered_until=found[0], received_after=created, max_flag=max_flag)
     older = f"; {n_all - n} late readings older than {config.filter.late_window_days:g} days not assimilated" \
         if n_all > n else ""
