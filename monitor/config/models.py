@@ -96,6 +96,9 @@ class StationConfig:
     climatology: Mapping[str, tuple[tuple[float, float], ...]] = field(default_factory=dict)
     # the station's own variables, stored as sent with their unit string, QC only as configured
     stored_only: tuple[str, ...] = ()
+    # days between a reading's time and its arrival (lab results); a replay makes a reading available
+    # only at its time plus this delay
+    reporting_delay_days: float = 0.0
 
 
 @dataclass(frozen=True)

@@ -43,7 +43,7 @@ from monitor.forecasting.baselines import baseline_members
 from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
-from monitor.forecasting.late import late_restart
+from monitor.forecasting.late import available_in_replay, delayed_restart, late_restart
 from monitor.forecasting.observations import OBSERVED_VARIABLES, to_observations
 from monitor.forecasting.observed_level import latest_observed
 from monitor.forecasting.publish import publish
@@ -111,12 +111,14 @@ def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
 
 
 def assimilable(engine: Engine, config: Config, wb: WaterBodyConfig, frame: pd.DataFrame, after: dt.datetime,
-                until: dt.datetime) -> pd.DataFrame:
+                until: dt.datetime, *, replay: bool = False) -> pd.DataFrame:
     """The plain readings of ``frame`` and the censored ones of the store that the filter may use in
-    (after, until], with columns ``censored`` and ``detection_limit``."""
+    (after, until], with columns ``censored`` and ``detection_limit``; in a replay only those
+    available by ``until`` (time plus the station's reporting delay)."""
     plain = observations_frame(frame, config, wb, after).assign(censored=False, detection_limit=np.nan)
     parts = [f for f in (plain, censored_frame(engine, config, wb, after, until)) if not f.empty]
-    return pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
+    both = pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
+    return available_in_replay(both, config, wb, until) if replay else both
 
 
 def censored_frame(engine: Engine, config: Config, wb: WaterBodyConfig, after: dt.datetime,
@@ -202,16 +204,18 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
            *, season_start: dt.datetime | None = None, replay: bool = False) -> CycleInputs:
     """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC).
 
-    ``replay``: readings count as available by their time stamps alone (a
-    replay of a stored history, where arrival times mean nothing), so there
-    are no late readings.
+    ``replay``: readings count as available by their time stamps plus their
+    station's ``reporting_delay_days`` (a replay of a stored history, where
+    arrival times mean nothing); those that became available since the
+    newest checkpoint are re-analysed like late readings.
     """
     spec = model_spec(wb)
     cfg = filter_config(config, wb)
     found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
     late_note = ""
-    if found is not None and not replay:
-        found, late_note = late_restart(engine, config, wb, analysis, found)
+    if found is not None:
+        restart = delayed_restart if replay else late_restart
+        found, late_note = restart(engine, config, wb, analysis, found)
     if found is not None:
         start, blob, guess = found[0], found[1], None
     else:
@@ -231,7 +235,8 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
         seed=config.filter.seed + sum(map(ord, wb.id)),
-        observations=to_observations(assimilable(engine, config, wb, frame, start, analysis), config, wb),
+        observations=to_observations(assimilable(engine, config, wb, frame, start, analysis, replay=replay),
+                                     config, wb),
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
