@@ -213,13 +213,21 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
     cfg = filter_config(config, wb)
     found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
     late_note = ""
+    gap = dt.timedelta(days=config.filter.cold_start_gap_days)
+    if found is not None and analysis - found[0] > gap:
+        late_note = (f"cold start: the newest checkpoint ({found[0]:%Y-%m-%d %H:%M} UTC) is more than "
+                     f"{config.filter.cold_start_gap_days:g} days old (cold_start_gap_days)")
+        found = None
     if found is not None:
         restart = delayed_restart if replay else late_restart
         found, late_note = restart(engine, config, wb, analysis, found)
+    elif not late_note and not replay:
+        late_note = "cold start: no stored checkpoint"
     if found is not None:
         start, blob, guess = found[0], found[1], None
     else:
-        start = season_start or (analysis - dt.timedelta(days=1))
+        start = season_start if season_start is not None and analysis - season_start <= gap \
+            else analysis - dt.timedelta(days=1)
         blob, guess = None, first_guess(engine, config, wb, spec, start)
     # One query for the cycle: from a few days before the checkpoint (to bridge
     # driver gaps) or two weeks before the analysis (for the outlook), whichever is earlier.
@@ -412,7 +420,9 @@ def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.dat
     with engine.begin() as conn:
         if guard is not None:
             guard(conn)
-        warm = store.count_forecast_runs(conn, wb.id, before=analysis) >= config.filter.spin_up_cycles
+        warm = store.runs_since_cold_start(conn, wb.id, analysis, config.filter.spin_up_cycles,
+                                           dt.timedelta(days=config.filter.cold_start_gap_days)) \
+            >= config.filter.spin_up_cycles
         if outputs.forecasts and not warm:
             message = (message + "; " if message else "") + \
                 f"spin-up: alert rules start after {config.filter.spin_up_cycles} cycles"
