@@ -11,6 +11,21 @@ analysis (:func:`assimilation.enkf.analysis` in log space) and
 post-processing (relaxation, parameter spread floor and bounds); the
 cycle's diagnostics follow (:mod:`assimilation.innovations`).
 
+Time means (a whole-day value, ``Observations.span_d`` > 0) are analysed
+at the end of their span against each member's mean over the span, the
+time-averaged observation of Dirren and Hakim (2005, Geophys. Res. Lett.
+32:L04804): the update uses the ensemble covariance between the state at
+the span's end and the members' span means. The members' path is sampled
+at the model step during the cycle; the part of a span before the cycle's
+checkpoint is not known, so the mean is over the part inside the cycle, and
+a path that crosses an earlier analysis of the same cycle is taken as the
+members ran it (before and after that analysis) — an approximation of
+Bloomline's, exact when the cycles and the days share their ends.
+
+Censored readings (below a detection limit) are skipped when the prior
+mean is already below the limit, else assimilated as L/2 ± L/2
+(:func:`assimilation.observe.censored_as_observations`).
+
 The ensemble carries the model state, group parameters and sensor gains
 (:mod:`assimilation.augmentation`); the settings are a
 :class:`assimilation.filter_config.FilterConfig`. Inflation: multiplicative
@@ -32,7 +47,7 @@ from assimilation.checkpoint import Checkpoint
 from assimilation.filter_config import FilterConfig
 from assimilation.first_guess import DEFAULT_FIRST_GUESS
 from assimilation.innovations import InnovationLog, json_float
-from assimilation.observe import Observations
+from assimilation.observe import Observations, censored_as_observations
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 
 __all__ = ["CycleResult", "assimilate", "initial_checkpoint"]
@@ -109,7 +124,8 @@ def assimilate(checkpoint: Checkpoint, observations: Observations, spec: ModelSp
     t0 = checkpoint.time_d
     t_end = float(t_end_d)
     rng = checkpoint.rng()
-    raw = observations.select((observations.time_d > t0) & (observations.time_d <= t_end))
+    # copies: censored readings' values and errors are replaced for the analysis
+    raw = observations.select(np.nonzero((observations.time_d > t0) & (observations.time_d <= t_end))[0])
     windows = observe.aggregate_windows(raw, cfg.window_d,
                                         representativeness_fraction=cfg.representativeness_fraction)
     when = _analysis_times(windows, t0, t_end, cfg.window_d)
@@ -149,13 +165,37 @@ def _check_inputs(checkpoint, observations, spec: ModelSpec, drivers: Drivers, t
 
 def _analysis_times(windows: Observations, t0: float, t_end: float, window_d: float) -> np.ndarray:
     """Analysis time of each windowed observation [epoch days]: the mean time of
-    its window's readings, kept within (t0, t_end]."""
+    its window's instant readings (a time mean: its own end), kept within (t0, t_end]."""
     window_index = np.ceil(windows.time_d / window_d) - 1
-    when = np.zeros(len(windows))
-    for k in np.unique(window_index):  # loop over windows in the cycle, not members
-        in_window = window_index == k
+    instant = windows.span_d == 0
+    when = windows.time_d.copy()
+    for k in np.unique(window_index[instant]):  # loop over windows in the cycle, not members
+        in_window = instant & (window_index == k)
         when[in_window] = windows.time_d[in_window].mean()
     return np.clip(when, np.nextafter(t0, np.inf), t_end)
+
+
+class _Path:
+    """The members' model states sampled along the cycle, for the span means of time-mean readings."""
+
+    def __init__(self):
+        self.times: list[np.ndarray] = []
+        self.states: list[np.ndarray] = []
+
+    def add(self, times: np.ndarray, states: np.ndarray) -> None:
+        """States (S, M, n_state) [µg/L] at times (S,) [epoch days], in time order after what was added."""
+        self.times.append(times)
+        self.states.append(states)
+
+    def mean(self, lo: float, hi: float) -> np.ndarray:
+        """Each member's time mean over [lo, hi] (trapezoidal rule over the samples inside), (M, n_state)."""
+        t = np.concatenate(self.times)
+        x = np.concatenate(self.states)
+        inside = (t >= lo - 1e-9) & (t <= hi + 1e-9)
+        t, x = t[inside], x[inside]
+        if t.size < 2 or not t[-1] > t[0]:
+            return x[-1]
+        return np.trapezoid(x, t, axis=0) / (t[-1] - t[0])
 
 
 def _run_windows(E, windows, when, t0, t_end, spec, drivers, cfg, cols, rng):
@@ -165,15 +205,21 @@ def _run_windows(E, windows, when, t0, t_end, spec, drivers, cfg, cols, rng):
     bounds = augmentation.parameter_bounds(spec, cols, cfg.parameter_bounds_factor)
     log, problems = InnovationLog(), []
     t = t0
+    path = _Path() if np.any(windows.span_d > 0) else None
     stops = list(np.unique(when)) + ([t_end] if (len(when) == 0 or when.max() < t_end) else [])
     for stop in stops:
         if stop > t:
-            E[:, cols.state] = _advance(E, t, stop, spec, drivers, cfg, cols, rng)
+            E[:, cols.state] = _advance(E, t, stop, spec, drivers, cfg, cols, rng, path)
             t = stop
-        batch = windows.select(when == stop)
+        batch = windows.select(np.nonzero(when == stop)[0])
         if len(batch) == 0:
             continue
-        Z, HE = _predict(E, batch, spec, cfg, cols)
+        Z, HE = _predict(E, batch, spec, cfg, cols, path, t0)
+        if batch.censored.any():
+            use = censored_as_observations(batch, HE)
+            batch, HE = batch.select(use), HE[:, use]
+            if len(batch) == 0:
+                continue
         R = batch.error_sd**2
         Ea, problem = _analyse(Z, HE, batch, R, spec, cfg, cols, bounds, rng)
         log.add(batch, HE, R, stop)
@@ -184,12 +230,20 @@ def _run_windows(E, windows, when, t0, t_end, spec, drivers, cfg, cols, rng):
     return E, log, problems
 
 
-def _advance(E, t, stop, spec, drivers, cfg, cols, rng) -> np.ndarray:
+def _advance(E, t, stop, spec, drivers, cfg, cols, rng, path: _Path | None = None) -> np.ndarray:
     """Model states (M, n_state) [µg/L] advanced from t to stop [epoch days] with
-    each member's parameters, plus stochastic model error; raises _AdvanceFailed."""
+    each member's parameters, plus stochastic model error; raises _AdvanceFailed.
+    With ``path`` the states at every model step are added to it."""
     params = augmentation.parameter_dict(E[:, cols.parameters], spec.n_groups) if cols.n_parameters else None
     try:
-        x = integrate.advance(E[:, cols.state], spec, drivers, t, stop, dt_d=cfg.dt_d, params=params)
+        if path is None:
+            x = integrate.advance(E[:, cols.state], spec, drivers, t, stop, dt_d=cfg.dt_d, params=params)
+        else:
+            steps = max(1, math.ceil((stop - t) / cfg.dt_d - 1e-9))  # the grid integrate.advance takes
+            times = np.linspace(t, stop, steps + 1)
+            states = integrate.simulate(E[:, cols.state], spec, drivers, t, times, dt_d=cfg.dt_d, params=params)
+            path.add(times, states)
+            x = states[-1]
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
         raise _AdvanceFailed(f"model advance from {t} to {stop} failed: {exc}") from exc
     if not np.all(np.isfinite(x)):
@@ -208,15 +262,27 @@ def _add_model_error(x: np.ndarray, span_d: float, cfg: FilterConfig, rng) -> np
     return transform.from_log(z)
 
 
-def _predict(E, batch: Observations, spec: ModelSpec, cfg: FilterConfig, cols):
+def _predict(E, batch: Observations, spec: ModelSpec, cfg: FilterConfig, cols, path: _Path | None = None,
+             t0: float = -np.inf):
     """The inflated ensemble in log space Z (M, n_aug) and its predicted
-    observations HE (M, p) [observation units]."""
+    observations HE (M, p) [observation units]; a time mean's from the members'
+    mean over its span since ``t0`` (inflated alike)."""
     Z = transform.to_log(E, cfg.state_floor_ugL)
     Z = inflation.inflate_multiplicative(Z, cfg.inflation, columns=cols.state)
     Ef = transform.from_log(Z)
     cyano = [g.is_cyanobacteria for g in spec.groups]
     H = observe.operator_matrix(batch, spec.n_basins, spec.n_groups, cyano)
-    return Z, observe.predict(Ef[:, cols.state], Ef[:, cols.gains], batch, H)
+    HE = observe.predict(Ef[:, cols.state], Ef[:, cols.gains], batch, H)
+    spans = np.nonzero(batch.span_d > 0)[0]
+    if path is not None and spans.size:
+        for span in np.unique(batch.span_d[spans]):  # a few distinct spans (days of 23, 24, 25 h)
+            sel = spans[batch.span_d[spans] == span]
+            end = float(batch.time_d[sel].max())
+            mean = path.mean(max(t0, end - float(span)), end)
+            zm = inflation.inflate_multiplicative(transform.to_log(mean, cfg.state_floor_ugL), cfg.inflation)
+            sub = batch.select(sel)
+            HE[:, sel] = observe.predict(transform.from_log(zm), Ef[:, cols.gains], sub, H[sel])
+    return Z, HE
 
 
 def _analyse(Z, HE, batch: Observations, R, spec: ModelSpec, cfg: FilterConfig, cols, bounds, rng):

@@ -7,7 +7,9 @@ of one basin's state (µg/L):
 ``chlorophyll_fluorescence`` gain · sum over groups of chlorophyll-a
 ``phycocyanin``              gain · chlorophyll-a of the cyanobacteria groups
 ``chlorophyll_a``            sum over groups of chlorophyll-a (lab, extracted)
-``nitrate``                  dissolved inorganic nitrogen N (lab)
+``nitrate``                  dissolved inorganic nitrogen N (lab; nitrate +
+                             ammonium where both were sampled, see
+                             ``monitor.forecasting.observations``)
 ``srp``                      soluble reactive phosphorus P (lab)
 ``total_phosphorus``         SRP + detrital P + a_P · sum of chlorophyll-a (lab)
 ``total_nitrogen``           DIN + detrital N + a_N · sum of chlorophyll-a (lab)
@@ -22,6 +24,17 @@ filter, index into the sensor gains), or 1 when ``sensor`` is -1.
 High-frequency sensor readings are aggregated into windows
 (:func:`aggregate_windows`) before they are assimilated. Missing or
 QC-failed readings are never passed in; non-finite values are rejected.
+
+Two kinds of reading are passed through the windows unaggregated:
+
+* **time means** (``span_d`` > 0): the reading is the mean over
+  (time_d − span_d, time_d] (a whole-day value); the filter compares it with
+  the members' mean over that span, the time-averaged observation of
+  Dirren and Hakim (2005, Geophys. Res. Lett. 32:L04804), analysed at the
+  span's end (see :mod:`assimilation.filter_cycle`);
+* **censored** readings (``censored``): below the detection limit held in
+  ``value``; the filter uses one as "below this" information
+  (:func:`censored_as_observations`).
 """
 from __future__ import annotations
 
@@ -48,7 +61,10 @@ class Observations:
 
     time_d [epoch days]; kind [str, one of OBSERVABLE_KINDS]; basin [index];
     sensor [index of the sensor whose gain is estimated, -1 none]; value
-    [µg/L, N as N and P as P]; error_sd [µg/L, > 0].
+    [µg/L, N as N and P as P]; error_sd [µg/L, > 0]; span_d [d, >= 0]: a
+    time mean over (time_d − span_d, time_d], 0 for an instant (default);
+    censored [bool]: below the detection limit held in ``value`` (default
+    False).
     """
 
     time_d: np.ndarray
@@ -57,8 +73,11 @@ class Observations:
     sensor: np.ndarray
     value: np.ndarray
     error_sd: np.ndarray
+    span_d: np.ndarray | None = None
+    censored: np.ndarray | None = None
 
     def __post_init__(self):
+        n = np.asarray(self.time_d).size
         fields = {
             "time_d": np.asarray(self.time_d, dtype=float).ravel(),
             "kind": np.asarray(self.kind, dtype=str).ravel(),
@@ -66,6 +85,9 @@ class Observations:
             "sensor": np.asarray(self.sensor, dtype=int).ravel(),
             "value": np.asarray(self.value, dtype=float).ravel(),
             "error_sd": np.asarray(self.error_sd, dtype=float).ravel(),
+            "span_d": np.zeros(n) if self.span_d is None else np.asarray(self.span_d, dtype=float).ravel(),
+            "censored": (np.zeros(n, dtype=bool) if self.censored is None
+                         else np.asarray(self.censored, dtype=bool).ravel()),
         }
         p = fields["time_d"].size
         for name, arr in fields.items():
@@ -81,6 +103,10 @@ class Observations:
             raise ValueError("Observations.error_sd must be > 0 [µg/L]")
         if np.any(fields["basin"] < 0) or np.any(fields["sensor"] < -1):
             raise ValueError("Observations.basin must be >= 0 and sensor >= -1")
+        if np.any(~(fields["span_d"] >= 0)) or not np.all(np.isfinite(fields["span_d"])):
+            raise ValueError("Observations.span_d must be finite and >= 0 [d]")
+        if np.any(fields["censored"] & ~(fields["value"] > 0)):
+            raise ValueError("a censored observation's value (its detection limit) must be > 0")
 
     @staticmethod
     def empty() -> Observations:
@@ -94,7 +120,23 @@ class Observations:
     def select(self, mask) -> Observations:
         """The readings where ``mask`` (boolean or index array) holds."""
         return Observations(self.time_d[mask], self.kind[mask], self.basin[mask],
-                            self.sensor[mask], self.value[mask], self.error_sd[mask])
+                            self.sensor[mask], self.value[mask], self.error_sd[mask], self.span_d[mask],
+                            self.censored[mask])
+
+    @staticmethod
+    def concatenate(parts) -> Observations:
+        """The readings of several :class:`Observations` in order."""
+        parts = [p for p in parts if len(p)]
+        if not parts:
+            return Observations.empty()
+        cat = {name: np.concatenate([getattr(p, name) for p in parts])
+               for name in ("time_d", "kind", "basin", "sensor", "value", "error_sd", "span_d", "censored")}
+        return Observations(**cat)
+
+    @property
+    def passed_through(self) -> np.ndarray:
+        """Readings that :func:`aggregate_windows` keeps as they are: time means and censored ones."""
+        return (self.span_d > 0) | self.censored
 
 
 def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
@@ -113,7 +155,8 @@ def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
     sample variance of the readings. The window mean stands for the basin at
     one instant, so its real variability is not divided by n (representativeness
     error in the sense of Janjić et al. 2018, Q. J. R. Meteorol. Soc.
-    144:1257). Sorted by time, kind, basin, sensor.
+    144:1257). Time means and censored readings (:attr:`Observations.passed_through`)
+    are kept as they are. Sorted by time, kind, basin, sensor.
     """
     if not window_d > 0:
         raise ValueError(f"window_d must be > 0 [d], got {window_d!r}")
@@ -121,6 +164,12 @@ def aggregate_windows(obs: Observations, window_d: float = 1.0, *,
         raise ValueError(f"representativeness_fraction must be >= 0, got {representativeness_fraction!r}")
     if len(obs) == 0:
         return Observations.empty()
+    through = obs.passed_through
+    if through.any():
+        both = Observations.concatenate([
+            aggregate_windows(obs.select(~through), window_d, representativeness_fraction=representativeness_fraction),
+            obs.select(through)])
+        return both.select(np.lexsort((both.sensor, both.basin, both.kind, both.time_d)))
     window = (np.ceil(obs.time_d / window_d) - 1).astype(np.int64)
     kind_code = np.searchsorted(np.array(sorted(OBSERVABLE_KINDS)), obs.kind)
     keys = np.stack([window, kind_code, obs.basin, obs.sensor], axis=1)
@@ -207,3 +256,26 @@ def predict(states: np.ndarray, gains: np.ndarray, obs: Observations, H: np.ndar
             raise ValueError(f"observation sensor index {obs.sensor.max()} but only {gains.shape[1]} sensor gains")
         HE[:, has_gain] *= gains[:, obs.sensor[has_gain]]
     return HE
+
+
+def censored_as_observations(batch: Observations, HE: np.ndarray) -> np.ndarray:
+    """Which censored readings to assimilate, changing their value and error in place of the limit.
+
+    batch: readings, some censored (``value`` = detection limit L [µg/L]);
+    HE (M, p): their predicted values. Bloomline's rule for a reading "below
+    L": when the prior mean already lies below L the reading agrees with the
+    prior and adds nothing that a Gaussian update could use, so it is
+    skipped; when the prior mean exceeds L it is assimilated as an
+    observation of L/2 with error sd L/2, so that one standard deviation
+    spans [0, L] (a Gaussian stand-in for "somewhere below L", as the
+    half-limit substitution of common practice, with the error widened to
+    cover the whole censored interval). Returns a mask of the readings to
+    keep (every uncensored one) and writes the stand-in values and errors
+    into ``batch.value`` and ``batch.error_sd`` (the arrays of ``batch``,
+    a selection made for this analysis).
+    """
+    keep = ~batch.censored
+    above = batch.censored & (HE.mean(axis=0) > batch.value)
+    batch.value[above] = 0.5 * batch.value[above]
+    batch.error_sd[above] = batch.value[above]
+    return keep | above

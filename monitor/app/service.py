@@ -182,9 +182,12 @@ class Service:
         water bodies not yet started are left for the next run.
         """
         wanted = set(only) if only else None
-        bodies = [wb for wb in self.config.water_bodies if wanted is None or wb.id in wanted]
+        chosen = [wb for wb in self.config.water_bodies if wanted is None or wb.id in wanted]
+        bodies = [wb for wb in chosen if wb.in_season(analysis)]
+        skipped = {wb.id: _out_of_season(wb, analysis) for wb in chosen if not wb.in_season(analysis)}
         if self.config.service.dask_scheduler and len(bodies) > 1:
-            return self._run_cycles_parallel(bodies, analysis, season_start)
+            done = {s["water_body"]: s for s in self._run_cycles_parallel(bodies, analysis, season_start)}
+            return [done.get(wb.id) or skipped[wb.id] for wb in chosen if wb.id in done or wb.id in skipped]
         summaries = []
         for wb in bodies:
             if self.stopping.is_set():
@@ -202,7 +205,8 @@ class Service:
                         self.verify(wb.id, analysis)
                 _report(rec, summary)
             summaries.append(summary)
-        return summaries
+        done = {s["water_body"]: s for s in summaries}
+        return [done.get(wb.id) or skipped[wb.id] for wb in chosen if wb.id in done or wb.id in skipped]
 
     def _run_cycles_parallel(self, bodies, analysis: dt.datetime, season_start) -> list[dict]:
         summaries: dict[str, dict] = {}
@@ -344,6 +348,13 @@ def compute_guarded(inputs: cycle.CycleInputs) -> cycle.CycleOutputs:
     except Exception as exc:  # noqa: BLE001 - reported as the water body's status, never raised
         return cycle.CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed",
                                   f"compute failed: {type(exc).__name__}: {exc}", None, {}, {}, inputs.basin_ids)
+
+
+def _out_of_season(wb, analysis: dt.datetime) -> dict:
+    """The summary of a water body whose monitoring season does not hold ``analysis``: no cycle, no run."""
+    return {"water_body": wb.id, "analysis_utc": analysis.isoformat(), "status": "out_of_season",
+            "message": f"outside the monitoring season ({wb.season_text()}): no cycle", "run_id": None,
+            "events": []}
 
 
 def _failed(water_body_id: str, analysis: dt.datetime, step: str, exc: Exception) -> dict:

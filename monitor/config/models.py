@@ -11,6 +11,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
+from zoneinfo import ZoneInfo
 
 from monitor.alerting.frameworks import AlertLevel
 
@@ -69,6 +70,25 @@ class WaterBodyConfig:
     model: Mapping[str, float] = field(default_factory=dict)  # ModelSpec constants overridden for this water body
     latitude_deg: float | None = None   # [° N] for clear-sky light when there is no weather feed
     longitude_deg: float | None = None  # [° E]
+    # the monitoring season: first and last (month, day), local dates, both included; may wrap the new
+    # year (("11-01", "03-31") reads as November to March); None = all year
+    season: tuple[tuple[int, int], tuple[int, int]] | None = None
+
+    def in_season(self, t) -> bool:
+        """Whether the local date of ``t`` (an aware datetime) lies in the monitoring season."""
+        if self.season is None:
+            return True
+        local = t.astimezone(ZoneInfo(self.timezone))
+        md = (local.month, local.day)
+        first, last = self.season
+        return first <= md <= last if first <= last else (md >= first or md <= last)
+
+    def season_text(self) -> str:
+        """The season as people write it: ``04-01 to 10-31``."""
+        if self.season is None:
+            return "all year"
+        (m0, d0), (m1, d1) = self.season
+        return f"{m0:02d}-{d0:02d} to {m1:02d}-{d1:02d}"
 
     def basin_index(self, basin_id: str) -> int:
         return [b.id for b in self.basins].index(basin_id)
@@ -96,6 +116,9 @@ class StationConfig:
     climatology: Mapping[str, tuple[tuple[float, float], ...]] = field(default_factory=dict)
     # the station's own variables, stored as sent with their unit string, QC only as configured
     stored_only: tuple[str, ...] = ()
+    # days between a reading's time and its arrival (lab results); a replay makes a reading available
+    # only at its time plus this delay
+    reporting_delay_days: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -224,6 +247,7 @@ class FilterSettings:
     assimilate_suspect: bool = False
     spin_up_cycles: int = 7  # cycles after a cold start before alert rules are evaluated
     late_window_days: float = 14.0  # late readings up to this old are re-analysed; older ones are reported
+    cold_start_gap_days: float = 30.0  # a checkpoint older than this is not resumed: the cycle starts cold
     published: str = "blend"  # the forecast published: the calibrated "blend" or the "process_model" alone
     options: Mapping[str, Any] = field(default_factory=dict)  # passed to assimilation FilterConfig
 
@@ -248,6 +272,8 @@ DEFAULT_OBSERVATION_ERRORS = {
     "nitrate": ObservationErrorConfig(0.15, 10.0),
     "srp": ObservationErrorConfig(0.2, 1.0),
     "total_phosphorus": ObservationErrorConfig(0.15, 2.0),
+    "total_nitrogen": ObservationErrorConfig(0.15, 20.0),
+    "ammonium": ObservationErrorConfig(0.15, 5.0),  # added to nitrate in the DIN observation
 }
 
 

@@ -24,7 +24,7 @@ from monitor.config.reader import Reader, database_url, resolve, secret
 #: Keys of ``[filter]`` that Bloomline reads itself; any other key must be an
 #: option of ``assimilation``'s FilterConfig (see :func:`model_setup.filter_option_kinds`).
 FILTER_SETTINGS_KEYS = ("members", "method", "seed", "window_days", "assimilate_suspect", "spin_up_cycles",
-                        "late_window_days", "published")
+                        "late_window_days", "published", "cold_start_gap_days")
 
 
 def read_service(s: Reader, base: Path) -> ServiceConfig:
@@ -127,6 +127,7 @@ def read_filter(fr: Reader) -> FilterSettings:
                           assimilate_suspect=fr.get("assimilate_suspect", bool, False),
                           spin_up_cycles=fr.get("spin_up_cycles", int, 7),
                           late_window_days=fr.positive("late_window_days", 14.0),
+                          cold_start_gap_days=fr.positive("cold_start_gap_days", 30.0),
                           published=fr.choice("published", ("process_model", "blend"), "blend"),
                           options=options)
     if filt.spin_up_cycles < 0:

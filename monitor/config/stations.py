@@ -38,7 +38,8 @@ def read_station(r: Reader) -> StationConfig:
     st = StationConfig(id=r.get("id", str), kind=r.choice("kind", STATION_KINDS),
                        water_body=r.get("water_body", str, None), basin=r.get("basin", str, None),
                        variables=variables, calibration=cal, qc=qc_table(r, "qc", own),
-                       climatology=_climatology(r, own), stored_only=stored_only)
+                       climatology=_climatology(r, own), stored_only=stored_only,
+                       reporting_delay_days=_delay(r))
     r.finish()
     return st
 
@@ -56,6 +57,14 @@ def _stored_only(r: Reader) -> tuple[str, ...]:
     if len(set(names)) != len(names):
         raise r.error("stored_only", f"names must be unique, got {names}")
     return tuple(names)
+
+
+def _delay(r: Reader) -> float:
+    """``reporting_delay_days``: days from a reading's time to its arrival (>= 0, default 0)."""
+    value = r.get("reporting_delay_days", float, 0.0)
+    if not 0 <= value < 366:
+        raise r.error("reporting_delay_days", f"expected a number of days from 0 to 365, got {value!r}")
+    return float(value)
 
 
 def _unknown(own: frozenset[str]) -> str:

@@ -8,6 +8,8 @@ what the model would refuse.
 
 from __future__ import annotations
 
+import datetime as dt
+
 from monitor.alerting.frameworks import FRAMEWORKS, AlertLevel
 from monitor.config.errors import ConfigError
 from monitor.config.model_setup import check_model_spec
@@ -39,10 +41,32 @@ def read_water_body(r: Reader) -> WaterBodyConfig:
         id=wid, name=r.get("name", str, wid), use=use, timezone=timezone(r, "timezone", "UTC"),
         weather_station=r.get("weather_station", str, None),
         basins=tuple(basins), inflows=tuple(inflows), alerts=_alerts(r.sub("alerts"), use), model=_model(r),
-        latitude_deg=_bounded(r, "latitude", -90.0, 90.0), longitude_deg=_bounded(r, "longitude", -180.0, 180.0))
+        latitude_deg=_bounded(r, "latitude", -90.0, 90.0), longitude_deg=_bounded(r, "longitude", -180.0, 180.0),
+        season=_season(r))
     r.finish()
     check_model_spec(wb, r.path, r.prefix)
     return wb
+
+
+def _season(r: Reader) -> tuple[tuple[int, int], tuple[int, int]] | None:
+    """``season = ["04-01", "10-31"]``: the first and last local date (month-day) of monitoring."""
+    value = r.get("season", list, None)
+    if value is None:
+        return None
+    expected = 'expected ["MM-DD", "MM-DD"], the first and last day of the season (e.g. ["04-01", "10-31"])'
+    if len(value) != 2 or not all(isinstance(x, str) for x in value):
+        raise r.error("season", f"{expected}; got {value!r}")
+    out = []
+    for text in value:
+        try:
+            month, day = (int(x) for x in text.strip().split("-"))
+            dt.date(2024, month, day)  # a leap year: 02-29 is a day of the season
+        except ValueError:
+            raise r.error("season", f"{expected}; {text!r} is not a month-day") from None
+        out.append((month, day))
+    if out[0] == out[1]:
+        raise r.error("season", f"{expected}; the first and last day are the same")
+    return out[0], out[1]
 
 
 def _bounded(r: Reader, name: str, lo: float, hi: float) -> float | None:

@@ -33,7 +33,7 @@ from assimilation.first_guess import (
 )
 from assimilation.forcing import member_drivers
 from assimilation.forecast import QUANTILES, daily_statistics, simulate_with_model_error
-from assimilation.observe import OBSERVABLE_KINDS, Observations
+from assimilation.observe import Observations
 from assimilation.spec import Drivers, ModelSpec, StateLayout
 from monitor.alerting import rules as alerts
 from monitor.alerting import webhooks
@@ -43,7 +43,8 @@ from monitor.forecasting.baselines import baseline_members
 from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
-from monitor.forecasting.late import late_restart
+from monitor.forecasting.late import available_in_replay, delayed_restart, late_restart
+from monitor.forecasting.observations import OBSERVED_VARIABLES, to_observations
 from monitor.forecasting.observed_level import latest_observed
 from monitor.forecasting.publish import publish
 from monitor.forecasting.quantities import QUANTITIES, quantity_series
@@ -105,26 +106,28 @@ def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
     if frame.empty:
         return frame
     basin_stations = {s.id for s in config.stations_of(wb.id) if s.basin is not None}
-    return frame[frame.station_id.isin(basin_stations) & frame.variable.isin(OBSERVABLE_KINDS)
+    return frame[frame.station_id.isin(basin_stations) & frame.variable.isin(OBSERVED_VARIABLES)
                  & (frame.time_utc > after)]
 
 
-def to_observations(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig) -> Observations:
-    """Stored readings → :class:`Observations` with per-variable error sd from the config."""
-    if frame.empty:
-        return Observations.empty()
-    basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations_of(wb.id) if s.basin}
-    sensors = chlorophyll_sensors(config, wb)
-    sensor_of = {sid: i for i, sid in enumerate(sensors)}
-    values = frame.value.to_numpy(dtype=float)
-    kinds = frame.variable.to_numpy(dtype=str)
-    fraction = np.array([config.observation_errors[k].fraction for k in kinds])
-    floor = np.array([config.observation_errors[k].floor for k in kinds])
-    sensor = np.array([sensor_of.get(s, -1) if k == "chlorophyll_fluorescence" else -1
-                       for s, k in zip(frame.station_id, kinds)], dtype=int)
-    return Observations(time_d=np.asarray(to_epoch_days(frame.time_utc)), kind=kinds,
-                        basin=frame.station_id.map(basin_of).to_numpy(dtype=int), sensor=sensor,
-                        value=values, error_sd=np.maximum(floor, fraction * np.abs(values)))
+def assimilable(engine: Engine, config: Config, wb: WaterBodyConfig, frame: pd.DataFrame, after: dt.datetime,
+                until: dt.datetime, *, replay: bool = False) -> pd.DataFrame:
+    """The plain readings of ``frame`` and the censored ones of the store that the filter may use in
+    (after, until], with columns ``censored`` and ``detection_limit``; in a replay only those
+    available by ``until`` (time plus the station's reporting delay)."""
+    plain = observations_frame(frame, config, wb, after).assign(censored=False, detection_limit=np.nan)
+    parts = [f for f in (plain, censored_frame(engine, config, wb, after, until)) if not f.empty]
+    both = pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
+    return available_in_replay(both, config, wb, until) if replay else both
+
+
+def censored_frame(engine: Engine, config: Config, wb: WaterBodyConfig, after: dt.datetime,
+                   until: dt.datetime) -> pd.DataFrame:
+    """The censored (below-detection) readings of ``wb``'s basins in (after, until], with their limits."""
+    stations = [s.id for s in config.stations_of(wb.id) if s.basin is not None]
+    frame = readings_frame(engine, stations=stations, variables=OBSERVED_VARIABLES, start=after, end=until,
+                           max_flag=0, include_censored=True)
+    return frame[frame.censored & (frame.time_utc > after)]
 
 
 def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: ModelSpec,
@@ -201,20 +204,30 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
            *, season_start: dt.datetime | None = None, replay: bool = False) -> CycleInputs:
     """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC).
 
-    ``replay``: readings count as available by their time stamps alone (a
-    replay of a stored history, where arrival times mean nothing), so there
-    are no late readings.
+    ``replay``: readings count as available by their time stamps plus their
+    station's ``reporting_delay_days`` (a replay of a stored history, where
+    arrival times mean nothing); those that became available since the
+    newest checkpoint are re-analysed like late readings.
     """
     spec = model_spec(wb)
     cfg = filter_config(config, wb)
     found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
     late_note = ""
-    if found is not None and not replay:
-        found, late_note = late_restart(engine, config, wb, analysis, found)
+    gap = dt.timedelta(days=config.filter.cold_start_gap_days)
+    if found is not None and analysis - found[0] > gap:
+        late_note = (f"cold start: the newest checkpoint ({found[0]:%Y-%m-%d %H:%M} UTC) is more than "
+                     f"{config.filter.cold_start_gap_days:g} days old (cold_start_gap_days)")
+        found = None
+    if found is not None:
+        restart = delayed_restart if replay else late_restart
+        found, late_note = restart(engine, config, wb, analysis, found)
+    elif not late_note and not replay:
+        late_note = "cold start: no stored checkpoint"
     if found is not None:
         start, blob, guess = found[0], found[1], None
     else:
-        start = season_start or (analysis - dt.timedelta(days=1))
+        start = season_start if season_start is not None and analysis - season_start <= gap \
+            else analysis - dt.timedelta(days=1)
         blob, guess = None, first_guess(engine, config, wb, spec, start)
     # One query for the cycle: from a few days before the checkpoint (to bridge
     # driver gaps) or two weeks before the analysis (for the outlook), whichever is earlier.
@@ -230,7 +243,8 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
         seed=config.filter.seed + sum(map(ord, wb.id)),
-        observations=to_observations(observations_frame(frame, config, wb, start), config, wb),
+        observations=to_observations(assimilable(engine, config, wb, frame, start, analysis, replay=replay),
+                                     config, wb),
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
@@ -418,7 +432,9 @@ def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.dat
     with engine.begin() as conn:
         if guard is not None:
             guard(conn)
-        warm = store.count_forecast_runs(conn, wb.id, before=analysis) >= config.filter.spin_up_cycles
+        warm = store.runs_since_cold_start(conn, wb.id, analysis, config.filter.spin_up_cycles,
+                                           dt.timedelta(days=config.filter.cold_start_gap_days)) \
+            >= config.filter.spin_up_cycles
         if outputs.forecasts and not warm:
             message = (message + "; " if message else "") + \
                 f"spin-up: alert rules start after {config.filter.spin_up_cycles} cycles"

@@ -1,15 +1,25 @@
-"""Late readings: those that arrived after the cycle that covered their time, re-analysed."""
+"""Late readings: those that arrived after the cycle that covered their time, re-analysed.
+
+Live, a reading is late when it was received after the checkpoint that
+covered its time (:func:`late_restart`). A replay has no arrival times: a
+station's ``reporting_delay_days`` stands for them, so a reading counts as
+available at its time plus that delay (:func:`available_in_replay`), and
+one that became available since the newest checkpoint is re-analysed the
+same way (:func:`delayed_restart`).
+"""
 
 from __future__ import annotations
 
 import datetime as dt
 
+import pandas as pd
 from sqlalchemy.engine import Engine
 
-from assimilation.observe import OBSERVABLE_KINDS
 from monitor.config import Config, WaterBodyConfig
+from monitor.forecasting.observations import OBSERVED_VARIABLES
 from monitor.store import runs as store
 from monitor.store.late import checkpoint_created, late_readings
+from monitor.store.readings import readings_frame
 from monitor.timeutil import EPOCH
 
 
@@ -28,9 +38,9 @@ def late_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: 
     window_start = analysis - dt.timedelta(days=config.filter.late_window_days)
     stations = [s.id for s in config.stations_of(wb.id) if s.basin]
     max_flag = 3 if config.filter.assimilate_suspect else 1
-    n_all, _ = late_readings(engine, stations=stations, variables=OBSERVABLE_KINDS, start=EPOCH,
+    n_all, _ = late_readings(engine, stations=stations, variables=OBSERVED_VARIABLES, start=EPOCH,
                              covered_until=found[0], received_after=created, max_flag=max_flag)
-    n, earliest = late_readings(engine, stations=stations, variables=OBSERVABLE_KINDS, start=window_start,
+    n, earliest = late_readings(engine, stations=stations, variables=OBSERVED_VARIABLES, start=window_start,
                                 covered_until=found[0], received_after=created, max_flag=max_flag)
     older = f"; {n_all - n} late readings older than {config.filter.late_window_days:g} days not assimilated" \
         if n_all > n else ""
@@ -41,3 +51,47 @@ def late_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: 
         return found, f"{n} late readings from {earliest:%Y-%m-%d %H:%M} UTC: no checkpoint before them{older}"
     return earlier, (f"re-analysed from {earlier[0]:%Y-%m-%d %H:%M} UTC for {n} late readings "
                      f"(earliest {earliest:%Y-%m-%d %H:%M} UTC){older}")
+
+
+def _delays(config: Config, wb: WaterBodyConfig) -> dict[str, float]:
+    """Reporting delay [d] of each basin station of ``wb`` that declares one."""
+    return {s.id: s.reporting_delay_days for s in config.stations_of(wb.id)
+            if s.basin and s.reporting_delay_days > 0}
+
+
+def available_in_replay(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
+                        analysis: dt.datetime) -> pd.DataFrame:
+    """The rows of ``frame`` (readings of ``wb``) available at ``analysis`` in a replay: time plus the
+    station's reporting delay at or before it."""
+    delays = _delays(config, wb)
+    if frame.empty or not delays:
+        return frame
+    delay = pd.to_timedelta(frame.station_id.map(delays).fillna(0.0).to_numpy(dtype=float), unit="D")
+    return frame[(frame.time_utc + delay) <= pd.Timestamp(analysis)]
+
+
+def delayed_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                    found: tuple[dt.datetime, bytes]) -> tuple[tuple[dt.datetime, bytes], str]:
+    """In a replay: the checkpoint to start from when readings stamped at or before the newest
+    checkpoint became available (time + reporting delay) after it, within ``late_window_days``.
+    Returns (checkpoint, message) like :func:`late_restart`."""
+    delays = _delays(config, wb)
+    if not delays:
+        return found, ""
+    window_start = analysis - dt.timedelta(days=config.filter.late_window_days)
+    max_flag = 3 if config.filter.assimilate_suspect else 1
+    frame = readings_frame(engine, stations=list(delays), variables=OBSERVED_VARIABLES, start=window_start,
+                           end=found[0], max_flag=max_flag, include_censored=True)
+    if frame.empty:
+        return found, ""
+    delay = pd.to_timedelta(frame.station_id.map(delays).to_numpy(dtype=float), unit="D")
+    available = frame.time_utc + delay
+    late = frame[(available > pd.Timestamp(found[0])) & (available <= pd.Timestamp(analysis))]
+    if late.empty:
+        return found, ""
+    earliest = late.time_utc.min().to_pydatetime()
+    earlier = store.latest_checkpoint(engine, wb.id, at_or_before=earliest - dt.timedelta(seconds=1))
+    if earlier is None:
+        return found, f"{len(late)} readings reported late from {earliest:%Y-%m-%d %H:%M} UTC: no checkpoint before them"
+    return earlier, (f"re-analysed from {earlier[0]:%Y-%m-%d %H:%M} UTC for {len(late)} readings reported late "
+                     f"(earliest {earliest:%Y-%m-%d %H:%M} UTC)")

@@ -9,6 +9,12 @@ Times are ISO 8601 (with or without an offset) or follow a strftime
 format; local times without an offset are in the feed's time zone, and a
 local time that does not exist or is ambiguous (daylight saving changes)
 is refused. Times come out as int64 ns since 1970-01-01T00:00Z.
+
+A time with no time of day (``2026-06-03``, or a strftime format without
+hour, minute or second) is a *whole-day* value: it stands for the whole
+local day of the water body, and is stamped at the end of that day
+(:func:`date_only`, :func:`day_ends`), the first instant at which the day's
+value can exist.
 """
 
 from __future__ import annotations
@@ -86,6 +92,52 @@ def _numbers_fast(cells: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray
     if (~finite & ~missing).any():
         return None  # overflow to inf: let the general path reject it with its reason
     return values, missing, np.zeros(arr.size, dtype=bool)
+
+
+_DATE_ONLY_ISO = re.compile(r"\d{4}-\d{2}-\d{2}$")
+#: strftime directives that give a time of day; a format with none of them names a whole day
+_TIME_OF_DAY_DIRECTIVES = ("%H", "%I", "%M", "%S", "%p", "%X", "%c", "%T", "%R", "%f", "%s", "%z", "%Z")
+
+
+def date_only(cells: np.ndarray, time_format: str) -> np.ndarray:
+    """Cells (str) that name a calendar date without a time of day → True (whole-day values)."""
+    if time_format == "iso":
+        return np.fromiter((_DATE_ONLY_ISO.match(str(c).strip()) is not None for c in cells), dtype=bool,
+                           count=len(cells))
+    return np.full(len(cells), not any(d in time_format for d in _TIME_OF_DAY_DIRECTIVES))
+
+
+def day_ends(cells: np.ndarray, time_format: str, timezones: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Dates (str, as :func:`date_only` accepts) → (end of that local day [ns UTC, int64], ok mask).
+
+    The end of local day D is local midnight at the start of D + 1 in the
+    cell's time zone (``timezones``, one IANA name per cell), so a day of a
+    daylight-saving change lasts 23 or 25 hours. A midnight that does not
+    exist is shifted forward to the first valid instant; an ambiguous one
+    (rare: zones that change at midnight) is refused (ok False).
+    """
+    texts = np.array([str(c).strip() for c in cells], dtype=object)
+    n = texts.size
+    out = np.zeros(n, dtype=np.int64)
+    ok = np.zeros(n, dtype=bool)
+    if n == 0:
+        return out, ok
+    fmt = "ISO8601" if time_format == "iso" else time_format
+    try:
+        dates = pd.DatetimeIndex(pd.to_datetime(texts, format=fmt, errors="coerce")).normalize()
+    except (ValueError, TypeError, OverflowError):
+        return out, ok
+    next_midnight = dates + pd.Timedelta(days=1)
+    zones = np.asarray(timezones, dtype=object)
+    for tz in pd.unique(zones):
+        idx = np.nonzero(zones == tz)[0]
+        local = pd.DatetimeIndex(next_midnight[idx]).tz_localize(tz, ambiguous="NaT", nonexistent="shift_forward")
+        good = ~local.isna()
+        naive_utc = local.tz_convert("UTC").tz_localize(None)
+        inside = good & np.asarray((naive_utc >= EARLIEST) & (naive_utc < LATEST), dtype=bool)
+        out[idx[inside]] = naive_utc[inside].as_unit("ns").asi8
+        ok[idx[inside]] = True
+    return out, ok
 
 
 def parse_times(cells: np.ndarray, time_format: str, timezone: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -44,7 +44,7 @@ def dedupe_batch(parsed: Parsed, rejections: list[Rejection], keys: list[str]) -
     keys: ``["station", "variable", "t"]``, with ``"issued"`` for weather
     forecasts. Returns the remaining readings sorted by station, variable,
     (issue time,) time [ns] (columns station, variable, t, value, line,
-    censored, unit), with an integer column ``series`` numbering the
+    censored, unit, whole_day), with an integer column ``series`` numbering the
     (station, variable) series in that order, and the number of duplicates.
     """
     issued = "issued" in keys
@@ -78,7 +78,8 @@ def dedupe_batch(parsed: Parsed, rejections: list[Rejection], keys: list[str]) -
     frame = pd.DataFrame({"station": np.asarray(st_names, dtype=object)[st_c[keep]] if n else np.array([], dtype=object),
                           "variable": np.asarray(var_names, dtype=object)[var_c[keep]] if n else np.array([], dtype=object),
                           "t": t[keep], "value": value[keep], "line": line[keep], "series": series,
-                          "censored": censored[keep], "unit": parsed.unit[order][keep]})
+                          "censored": censored[keep], "unit": parsed.unit[order][keep],
+                          "whole_day": parsed.whole_day[order][keep]})
     if issued:
         frame["issued"] = parsed.issued_ns[order][keep]
     return frame, duplicate

@@ -21,7 +21,11 @@ and reason:
 * local times without an offset are in the feed's time zone; a local time
   that does not exist or is ambiguous (daylight saving changes) is
   rejected; a time with an offset or ``Z`` is converted to UTC
-  (:mod:`monitor.ingest.cells`).
+  (:mod:`monitor.ingest.cells`);
+* a time with no time of day (``2026-06-03``) is a whole-day value: it
+  stands for that whole local day of the station's water body (its
+  ``timezone``; the feed's for a station of no water body) and is stamped
+  at the end of that day, with ``whole_day`` set.
 
 Numbers must look like decimal numbers (``12``, ``-0.5``, ``1e-3``) and be
 finite: ``inf``, ``0x1F``, ``1_000`` and ``1,5`` are rejected. A record
@@ -39,7 +43,7 @@ from pathlib import PurePath
 import numpy as np
 import pandas as pd
 
-from monitor.ingest.cells import parse_times
+from monitor.ingest.cells import date_only, day_ends, parse_times
 from monitor.ingest.tables import Rejection, Table, clean_text, csv_table, decode, json_table
 from monitor.ingest.values import Verdicts, read_values
 from monitor.ingest.variables import VARIABLES
@@ -60,6 +64,7 @@ class Parsed:
     issued_ns: np.ndarray | None = None  # int64, for weather-forecast feeds
     censored: np.ndarray | None = None  # bool: below the detection limit held in ``value``
     unit: np.ndarray | None = None  # object: a stored-only variable's unit as sent, else None
+    whole_day: np.ndarray | None = None  # bool: a value for the local day ending at ``time_ns``
     rejected: list[Rejection] = field(default_factory=list)
     record_lines: list[int] = field(default_factory=list)  # every data record's line number
     notes: list[str] = field(default_factory=list)
@@ -70,6 +75,8 @@ class Parsed:
             self.censored = np.zeros(self.value.size, dtype=bool)
         if self.unit is None:
             self.unit = np.full(self.value.size, None, dtype=object)
+        if self.whole_day is None:
+            self.whole_day = np.zeros(self.value.size, dtype=bool)
 
     def __len__(self) -> int:
         return int(self.value.size)
@@ -166,6 +173,7 @@ def _readings(table: Table, feed, config, origin, now, result: Parsed) -> Parsed
     t_ns, issued_ns = _times(records, index, feed, now, rows)
     known = {st.id: st for st in getattr(config, "stations", ())} if config is not None else {}
     station = _stations(records, index, feed, origin, known, rows)
+    whole_day = _whole_days(records, index, feed, config, known, station, t_ns, now, rows)
     cand = _candidates(records, index, feed, wide_cols, station, known)
     _report(result, records, np.nonzero(~rows.ok)[0], rows.reason[~rows.ok])
     cand = cand.subset(rows.ok[cand.record])
@@ -181,6 +189,7 @@ def _readings(table: Table, feed, config, origin, now, result: Parsed) -> Parsed
     result.value = np.where(values.missing[sel], np.nan, values.number[sel])
     result.censored = values.censored[sel]
     result.unit = values.unit[sel]
+    result.whole_day = whole_day[cand.record[sel]]
     result.line = records.lines[cand.record[sel]]
     if issued_ns is not None:
         result.issued_ns = issued_ns[cand.record[sel]]
@@ -268,6 +277,41 @@ def _times(records: _Records, index: dict[str, int], feed, now, rows: Verdicts
         issued_ns, i_ok, _ = parse_times(icell, feed.time_format, feed.timezone)
         rows.reject(~i_ok, lambda j: f"issue time {str(icell[j])[:60]!r} does not match the time format {fmt_name}")
     return t_ns, issued_ns
+
+
+def _whole_days(records: _Records, index: dict[str, int], feed, config, known: Mapping, station: np.ndarray,
+                t_ns: np.ndarray, now, rows: Verdicts) -> np.ndarray:
+    """Records dated without a time of day → True, their ``t_ns`` moved to the end of that local day of the
+    station's water body (in place); a day whose end cannot be placed, or lies in the future, is rejected."""
+    if feed.role != "readings":
+        return np.zeros(len(records), dtype=bool)
+    tcell = records.column(index["time"])
+    whole = date_only(tcell, feed.time_format) & rows.ok
+    if not whole.any():
+        return whole
+    zones = np.array([_zone(config, known.get(s), feed.timezone) for s in station[whole]], dtype=object)
+    ends, ok = day_ends(tcell[whole], feed.time_format, zones)
+    idx = np.nonzero(whole)[0]
+    t_ns[idx[ok]] = ends[ok]
+    bad = np.zeros(len(records), dtype=bool)
+    bad[idx[~ok]] = True
+    rows.reject(bad, lambda j: f"the local day {str(tcell[j])[:60]!r} has no unambiguous end (daylight saving)")
+    if now is not None:
+        late = np.zeros(len(records), dtype=bool)
+        late[idx[ok]] = ends[ok] - NS_PER_DAY > ns_from_datetime(now) + FUTURE_TOLERANCE_NS
+        rows.reject(late, "time is more than a day in the future (clock or time zone wrong?)")
+    whole[idx[~ok]] = False
+    return whole
+
+
+def _zone(config, st, feed_zone: str) -> str:
+    """The time zone of a station's local day: its water body's, else the feed's."""
+    if config is not None and st is not None and st.water_body:
+        try:
+            return config.water_body(st.water_body).timezone
+        except (KeyError, LookupError, ValueError):
+            return feed_zone
+    return feed_zone
 
 
 def _time_reason(cell, code: int, timezone: str, fmt_name: str) -> str:

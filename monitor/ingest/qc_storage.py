@@ -88,6 +88,7 @@ class _SeriesResult:
     value: np.ndarray  # the value, or a censored reading's detection limit
     censored: np.ndarray
     unit: np.ndarray
+    whole_day: np.ndarray  # bool
     flag: np.ndarray
     tests: np.ndarray
     fills: list[tuple]  # (value, censored, limit, unit, flag, tests, batch, id) of stored missing readings filled in
@@ -171,8 +172,9 @@ def _store_series(conn: Connection, config, parsed: Parsed, source: str, batch_i
     f_new = flag_all[n_stored:]
     accepted += int(f_new.size)
     flagged += int(np.isin(f_new, (SUSPECT, FAIL)).sum())
+    w_new = g["whole_day"].to_numpy(dtype=bool)
     return _SeriesResult(station, variable, (t_min, t_max), t_new[keep], v_new[keep], c_new[keep], u_new[keep],
-                         f_new, qc.digits_to_strings(digits_all[n_stored:]), fills, accepted, flagged, duplicate)
+                         w_new[keep], f_new, qc.digits_to_strings(digits_all[n_stored:]), fills, accepted, flagged, duplicate)
 
 
 def _db_float(x: float) -> float | None:
@@ -267,17 +269,19 @@ def _insert_new(conn: Connection, results: list[_SeriesResult], source: str, bat
     rows = list(zip(stations, variables, db_times(t, d), value_list, censored.astype(int).tolist(), limits,
                     np.concatenate([r.unit for r in results]).tolist(),
                     np.concatenate([r.flag for r in results]).astype(int).tolist(),
-                    np.concatenate([r.tests for r in results]).tolist(), repeat(source), repeat(batch_id)))
+                    np.concatenate([r.tests for r in results]).tolist(),
+                    np.concatenate([r.whole_day for r in results]).astype(int).tolist(),
+                    repeat(source), repeat(batch_id)))
     return _insert_readings(conn, rows), len(rows)
 
 
 def _insert_readings(conn: Connection, rows: list[tuple]) -> int:
-    """Insert (station, variable, time, value, censored, detection limit, unit, flag, tests, source, batch)
-    rows; return how many were new."""
+    """Insert (station, variable, time, value, censored, detection limit, unit, flag, tests, whole day,
+    source, batch) rows; return how many were new."""
     ph = param_marker(conn)
     sql = (f"INSERT INTO readings (station_id, variable, time_utc, value, censored, detection_limit, unit, "
-           f"qc_flag, qc_tests, source, batch_id) "
-           f"VALUES ({ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}) "
+           f"qc_flag, qc_tests, whole_day, source, batch_id) "
+           f"VALUES ({ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}) "
            f"ON CONFLICT (station_id, variable, time_utc, source) DO NOTHING")
     total = 0
     for k in range(0, len(rows), INSERT_CHUNK):

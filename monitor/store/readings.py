@@ -50,7 +50,7 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
     extra = [readings.c.censored, readings.c.detection_limit] if include_censored else []
     q = (select(readings.c.station_id, readings.c.variable, type_coerce(readings.c.time_utc, String),
                 readings.c.value,
-                readings.c.qc_flag, readings.c.source, *extra)
+                readings.c.qc_flag, readings.c.source, readings.c.whole_day, *extra)
          .where(and_(*cond))
          .order_by(readings.c.time_utc, readings.c.station_id, readings.c.variable, readings.c.source))
     with engine.connect() as conn:
@@ -61,18 +61,19 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
         frame = pd.DataFrame({"station_id": pd.Series([], dtype=object), "variable": pd.Series([], dtype=object),
                               "time_utc": pd.Series([], dtype="datetime64[ns, UTC]"),
                               "value": pd.Series([], dtype=float), "qc_flag": pd.Series([], dtype=np.int64),
-                              "source": pd.Series([], dtype=object)})
+                              "source": pd.Series([], dtype=object), "whole_day": pd.Series([], dtype=bool)})
         if include_censored:
             frame["censored"] = pd.Series([], dtype=bool)
             frame["detection_limit"] = pd.Series([], dtype=float)
         return frame
     cols = list(zip(*rows))
-    st, var, t, v, f, src = cols[:6]
+    st, var, t, v, f, src, wd = cols[:7]
     frame = pd.DataFrame({"station_id": list(st), "variable": list(var), "time_utc": utc_series_from_db(t),
-                          "value": _floats(v), "qc_flag": np.asarray(f, dtype=np.int64), "source": list(src)})
+                          "value": _floats(v), "qc_flag": np.asarray(f, dtype=np.int64), "source": list(src),
+                          "whole_day": np.asarray(wd, dtype=np.int64) != 0})
     if include_censored:
-        frame["censored"] = np.asarray(cols[6], dtype=np.int64) != 0
-        frame["detection_limit"] = _floats(cols[7])
+        frame["censored"] = np.asarray(cols[7], dtype=np.int64) != 0
+        frame["detection_limit"] = _floats(cols[8])
     return frame
 
 

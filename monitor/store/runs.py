@@ -157,6 +157,23 @@ def count_forecast_runs(bind: Bind, water_body_id: str, *, before: dt.datetime |
         return int(conn.execute(q).scalar())
 
 
+def runs_since_cold_start(bind: Bind, water_body_id: str, analysis: dt.datetime, most: int,
+                          gap: dt.timedelta) -> int:
+    """How many of the newest runs before ``analysis`` (at most ``most``) follow each other without a gap
+    longer than ``gap`` up to ``analysis``: the cycles since the last cold start, counted to ``most``."""
+    runs = schema.forecast_runs
+    q = (select(runs.c.analysis_utc).where(runs.c.water_body_id == water_body_id, runs.c.analysis_utc < analysis)
+         .order_by(runs.c.analysis_utc.desc()).limit(max(int(most), 0)))
+    with reading(bind) as conn:
+        times = [t for (t,) in conn.execute(q).all()]
+    n, later = 0, analysis
+    for t in times:
+        if later - t > gap:
+            break
+        n, later = n + 1, t
+    return n
+
+
 def newest_run_times(bind: Bind) -> dict[str, dt.datetime]:
     """The analysis time of each water body's newest stored forecast run (any status)."""
     runs = schema.forecast_runs

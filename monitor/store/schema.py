@@ -128,6 +128,9 @@ readings = Table(
     Column("censored", SmallInteger, nullable=False, default=0, server_default=text("0")),
     Column("detection_limit", Float, nullable=True),
     Column("unit", String(64), nullable=True),  # a station's stored-only variable: its unit as sent; else NULL
+    # 1 = a value for the whole local day ending at time_utc (a date without a time of day, see
+    # monitor.ingest.cells); 0 = a value at the instant time_utc
+    Column("whole_day", SmallInteger, nullable=False, default=0, server_default=text("0")),
     # The unique index also serves every (station, variable, time range) query: no second index.
     UniqueConstraint("station_id", "variable", "time_utc", "source"),
 )
