@@ -136,25 +136,26 @@ def season_rows(config: Config, *, seed: int, start: dt.datetime, days: int,
 
 def write_readings(engine: Engine, config: Config, *, seed: int = 20260601,
                    start: dt.datetime = dt.datetime(2026, 6, 1, tzinfo=UTC), days: int = 30,
-                   cadence_minutes: int = 60, received_at: dt.datetime | None = None) -> int:
+                   cadence_minutes: int = 60, received_at: dt.datetime | None = None, source: str = SOURCE) -> int:
     """Insert the synthetic season (buoys every ``cadence_minutes``, gauges daily, weather hourly)
-    into a migrated store, in bulk under one ingest batch; returns the number of readings."""
+    into a migrated store, in bulk under one ingest batch received at ``received_at`` (default
+    ``start``) with ``source`` as the readings' source; returns the number of readings."""
     if start.tzinfo is None:
         raise ValueError("start must be an aware UTC datetime")
     received = received_at or start
     with engine.begin() as conn:
         batch_id = conn.execute(insert(schema.ingest_batches).values(
-            feed=SOURCE, origin="monitor.app.synthetic", sha256="0" * 64, archive_path=None, received_at=received,
+            feed=source, origin="monitor.app.synthetic", sha256="0" * 64, archive_path=None, received_at=received,
             status="ok", message="synthetic season", received=0, accepted=0)).inserted_primary_key[0]
         rows = season_rows(config, seed=seed, start=start, days=days, cadence_minutes=cadence_minutes)
         if engine.dialect.name == "postgresql":
-            n = _copy_postgres(conn, rows, batch_id)
+            n = _copy_postgres(conn, rows, batch_id, source)
         else:
             n = 0
             chunk: list[dict] = []
             for st, var, t, v in rows:
                 chunk.append(dict(station_id=st, variable=var, time_utc=t, value=v, qc_flag=1, qc_tests="",
-                                  source=SOURCE, batch_id=batch_id, censored=0))
+                                  source=source, batch_id=batch_id, censored=0))
                 if len(chunk) >= 50_000:
                     conn.execute(insert(schema.readings), chunk)
                     n += len(chunk)
@@ -167,7 +168,7 @@ def write_readings(engine: Engine, config: Config, *, seed: int = 20260601,
     return n
 
 
-def _copy_postgres(conn, rows, batch_id: int) -> int:
+def _copy_postgres(conn, rows, batch_id: int, source: str) -> int:
     """COPY the rows into ``readings`` (PostgreSQL): tens of times faster than INSERT for millions of rows."""
     cursor = conn.connection.driver_connection.cursor()
     n = 0
@@ -175,7 +176,7 @@ def _copy_postgres(conn, rows, batch_id: int) -> int:
     with cursor.copy(f"COPY readings ({columns}) FROM STDIN") as copy:
         buf = io.StringIO()
         for st, var, t, v in rows:
-            buf.write(f"{st}\t{var}\t{naive_utc(t).isoformat(sep=' ')}\t{v!r}\t1\t\t{SOURCE}\t{batch_id}\t0\n")
+            buf.write(f"{st}\t{var}\t{naive_utc(t).isoformat(sep=' ')}\t{v!r}\t1\t\t{source}\t{batch_id}\t0\n")
             n += 1
             if n % 100_000 == 0:
                 copy.write(buf.getvalue())
