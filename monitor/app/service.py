@@ -29,7 +29,8 @@ from sqlalchemy.engine import Connection, Engine
 from monitor.alerting import notify, subscriptions
 from monitor.alerting.transports import WebhookTransport
 from monitor.config import Config
-from monitor.forecasting import cycle
+from monitor.forecasting import batch_record, cycle, many
+from monitor.forecasting.many import compute_guarded
 from monitor.ingest.batches import BatchResult
 from monitor.ingest.feeds import start_mqtt_feeds
 from monitor.ingest.feeds.csv_folder import ingest_all, poll_folder
@@ -43,6 +44,9 @@ from monitor.verification.live import score_recent
 
 log = logging.getLogger("bloomline")
 DAY = dt.timedelta(days=1)
+#: Water bodies from which a cycle is run in batches (:mod:`monitor.forecasting.many`); fewer are run one
+#: by one, each gathered, computed and recorded before the next starts.
+BATCH_FROM = 20
 
 
 @dataclass
@@ -87,6 +91,8 @@ class Service:
         #: run first in every write transaction of a job; raises when this process may not act
         self.guard: Callable[[Connection], None] | None = None
         self._dask = None
+        #: from this many water bodies a cycle reads, computes and records them in batches
+        self.batch_from = BATCH_FROM
         store.sync_config(self.engine, config)
         subscriptions.sync_from_config(self.engine, config, clock())
 
@@ -185,8 +191,8 @@ class Service:
         chosen = [wb for wb in self.config.water_bodies if wanted is None or wb.id in wanted]
         bodies = [wb for wb in chosen if wb.in_season(analysis)]
         skipped = {wb.id: _out_of_season(wb, analysis) for wb in chosen if not wb.in_season(analysis)}
-        if self.config.service.dask_scheduler and len(bodies) > 1:
-            done = {s["water_body"]: s for s in self._run_cycles_parallel(bodies, analysis, season_start)}
+        if len(bodies) >= self.batch_from or (self.config.service.dask_scheduler and len(bodies) > 1):
+            done = {s["water_body"]: s for s in self._run_cycles_batched(bodies, analysis, season_start)}
             return [done.get(wb.id) or skipped[wb.id] for wb in chosen if wb.id in done or wb.id in skipped]
         summaries = []
         for wb in bodies:
@@ -208,23 +214,44 @@ class Service:
         done = {s["water_body"]: s for s in summaries}
         return [done.get(wb.id) or skipped[wb.id] for wb in chosen if wb.id in done or wb.id in skipped]
 
-    def _run_cycles_parallel(self, bodies, analysis: dt.datetime, season_start) -> list[dict]:
+    def _run_cycles_batched(self, bodies, analysis: dt.datetime, season_start) -> list[dict]:
+        """Many water bodies: batched gather, compute in-process or on the Dask cluster (results as they
+        finish), record in batches (:mod:`monitor.forecasting.many`); each still one job run."""
         summaries: dict[str, dict] = {}
-        inputs = []
+        client = self._dask_client() if self.config.service.dask_scheduler else None
+        results = many.computed(self.engine, self.config, bodies, analysis, season_start=season_start,
+                                replay=self.replay, client=client, stopping=self.stopping)
+        for batch in many.batches(results, many.RECORD_BATCH):
+            outputs = []
+            for out in batch:
+                if isinstance(out, many.StepFailed):
+                    summaries[out.water_body_id] = _failed(out.water_body_id, analysis, out.step, out.error)
+                else:
+                    outputs.append(out)
+            for out, result in zip(outputs, self._record_many(outputs, analysis)):
+                summaries[out.water_body_id] = result
+                if result.get("run_id") is not None:
+                    self.verify(out.water_body_id, analysis)
+        if len(summaries) < len(bodies):
+            log.info("stopping: cycles left for the next run", extra={"event": "cycle.deferred"})
         for wb in bodies:
-            try:
-                inputs.append(cycle.gather(self.engine, self.config, wb, analysis, season_start=season_start,
-                                           replay=self.replay))
-            except Exception as exc:  # noqa: BLE001
-                summaries[wb.id] = _failed(wb.id, analysis, "gather", exc)
-        for out in self.compute_many(inputs):
-            summaries[out.water_body_id] = self._record(out, analysis)
-            if summaries[out.water_body_id].get("run_id") is not None:
-                self.verify(out.water_body_id, analysis)
-        for wb in bodies:
-            with self.job("cycle", water_body=wb.id, scheduled=analysis) as rec:
-                _report(rec, summaries[wb.id])
-        return [summaries[wb.id] for wb in bodies]
+            if wb.id in summaries:
+                with self.job("cycle", water_body=wb.id, scheduled=analysis) as rec:
+                    _report(rec, summaries[wb.id])
+        return [summaries[wb.id] for wb in bodies if wb.id in summaries]
+
+    def _record_many(self, outputs: list[cycle.CycleOutputs], analysis: dt.datetime) -> list[dict]:
+        """Record a batch in one transaction; a water body whose writes fail is reported alone. If the
+        batch itself cannot be written, each is recorded on its own."""
+        try:
+            results = batch_record.record_many(self.engine, self.config, outputs, now=self.clock(), guard=self.guard)
+        except LeaseLost:
+            raise
+        except Exception:  # noqa: BLE001 - e.g. the observed-level query: fall back to one by one
+            log.exception("batched record failed; recording one by one", extra={"event": "cycle.record_fallback"})
+            return [self._record(out, analysis) for out in outputs]
+        return [_failed(out.water_body_id, analysis, "record", r) if isinstance(r, Exception) else r
+                for out, r in zip(outputs, results)]
 
     def verify(self, water_body_id: str, analysis: dt.datetime) -> None:
         """Score the recent runs of a water body against the readings now stored (the live record).
@@ -296,11 +323,17 @@ class Service:
         address = self.config.service.dask_scheduler
         if not address or len(inputs) < 2:
             return [compute_guarded(i) for i in inputs]
+        return self._dask_runner().map(compute_guarded, inputs)
+
+    def _dask_runner(self):
         if self._dask is None:
             from monitor.forecasting.parallel import DaskRunner
 
-            self._dask = DaskRunner(address)
-        return self._dask.map(compute_guarded, inputs)
+            self._dask = DaskRunner(self.config.service.dask_scheduler)
+        return self._dask
+
+    def _dask_client(self):
+        return self._dask_runner().client
 
     def close(self, *, dispose_engine: bool = True) -> None:
         """Release the Dask client (if any) and, unless told not to, the database connections."""
@@ -339,15 +372,6 @@ def _report(rec: JobRecord, summary: dict) -> None:
     rec.counts = {"status": summary["status"], "run_id": summary["run_id"], "events": len(summary["events"])}
     if summary["status"] == "failed":
         rec.fail(summary["message"] or "the cycle failed")
-
-
-def compute_guarded(inputs: cycle.CycleInputs) -> cycle.CycleOutputs:
-    """:func:`cycle.compute`, with any exception turned into a "failed" output of that water body."""
-    try:
-        return cycle.compute(inputs)
-    except Exception as exc:  # noqa: BLE001 - reported as the water body's status, never raised
-        return cycle.CycleOutputs(inputs.water_body_id, inputs.analysis_d, "failed",
-                                  f"compute failed: {type(exc).__name__}: {exc}", None, {}, {}, inputs.basin_ids)
 
 
 def _out_of_season(wb, analysis: dt.datetime) -> dict:

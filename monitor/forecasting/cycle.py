@@ -130,20 +130,22 @@ def censored_frame(engine: Engine, config: Config, wb: WaterBodyConfig, after: d
     return frame[frame.censored & (frame.time_utc > after)]
 
 
-def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: ModelSpec,
-                at: dt.datetime) -> np.ndarray:
+def first_guess(engine: Engine | None, config: Config, wb: WaterBodyConfig, spec: ModelSpec,
+                at: dt.datetime, *, frame: pd.DataFrame | None = None) -> np.ndarray:
     """A first-guess state from the most recent samples before ``at`` (defaults where none).
 
     Each pool takes the median of its samples; detrital P is what a total-P
     sample leaves after SRP and algal P (:func:`detrital_phosphorus_from_total`),
     detrital N the same at the algae's N:P; without a total-P sample both keep
-    their defaults.
+    their defaults. ``frame``: the readings of ``wb``'s stations from 14 days
+    before ``at`` to 2 days after, when already read (else read from ``engine``).
     """
     layout = StateLayout(spec)
     B, G = spec.n_basins, spec.n_groups
     cyano = spec.cyanobacteria_index
-    frame = observations_frame(station_readings(engine, config, wb, at - dt.timedelta(days=14),
-                                                at + dt.timedelta(days=2)), config, wb, at - dt.timedelta(days=14))
+    if frame is None:
+        frame = station_readings(engine, config, wb, at - dt.timedelta(days=14), at + dt.timedelta(days=2))
+    frame = observations_frame(frame, config, wb, at - dt.timedelta(days=14))
     basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations_of(wb.id) if s.basin}
     N = np.full(B, DEFAULT_FIRST_GUESS.nitrogen_ugL)
     P = np.full(B, DEFAULT_FIRST_GUESS.phosphorus_ugL)
@@ -182,14 +184,16 @@ def first_guess(engine: Engine, config: Config, wb: WaterBodyConfig, spec: Model
 
 def outlook_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, series: StationSeries,
                     analysis: dt.datetime, horizon_days: int, *, history: ObservedHistory | None = None,
-                    notes: list[str] | None = None) -> list[Drivers]:
+                    notes: list[str] | None = None, weather: pd.DataFrame | None = None) -> list[Drivers]:
     """The forecast's driver scenarios from ``analysis`` (aware UTC) over ``horizon_days``: the newest
     weather forecast issued by then (else a persistence climatology), one scenario per entry of
     :data:`DRIVER_SCENARIOS_C`. ``series`` holds the last two weeks of readings of ``wb``'s stations;
     ``history`` (the observed daily history) gives the water temperature's seasonal climatology used
-    when there is no weather feed; substitutions are named in ``notes``."""
-    weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
-               if wb.weather_station else pd.DataFrame())
+    when there is no weather feed; substitutions are named in ``notes``. ``weather``: the weather
+    forecast when already read (else read from ``engine``)."""
+    if weather is None:
+        weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
+                   if wb.weather_station else pd.DataFrame())
     climatology = {}
     if history is not None:
         centre_d = float(to_epoch_days(analysis)) + horizon_days / 2
@@ -428,27 +432,36 @@ def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.dat
     wb = config.water_body(outputs.water_body_id)
     analysis = from_epoch_days(outputs.analysis_d)
     observed = latest_observed(engine, config, wb, analysis) if outputs.forecasts else {}
-    message = outputs.message
     with engine.begin() as conn:
         if guard is not None:
             guard(conn)
-        warm = store.runs_since_cold_start(conn, wb.id, analysis, config.filter.spin_up_cycles,
-                                           dt.timedelta(days=config.filter.cold_start_gap_days)) \
-            >= config.filter.spin_up_cycles
-        if outputs.forecasts and not warm:
-            message = (message + "; " if message else "") + \
-                f"spin-up: alert rules start after {config.filter.spin_up_cycles} cycles"
-        if outputs.checkpoint is not None:
-            store.save_checkpoint(conn, wb.id, analysis, outputs.checkpoint, now=now)
-        run_id = store.save_forecast_run(conn, wb.id, analysis, outputs.status, message,
-                                         outputs.diagnostics, forecast_rows(outputs),
-                                         members=member_rows(outputs), now=now)
-        events = []
-        if outputs.forecasts and warm:
-            events = alerts.evaluate_run(conn, config, wb.id, run_id, observed, now or analysis)
-        if outputs.forecasts:
-            maxima = alerts.exceedance_maxima(conn, run_id, analysis, wb.alerts.horizon_days)
-            webhooks.enqueue_forecast(conn, config, wb, run_id=run_id, analysis=analysis, status=outputs.status,
-                                      maxima=maxima, now=now or analysis)
+        return record_in(conn, config, outputs, observed, now=now)
+
+
+def record_in(conn: Connection, config: Config, outputs: CycleOutputs, observed: dict[str, float | None],
+              *, now: dt.datetime | None = None) -> dict:
+    """The writes of :func:`record` in the caller's transaction; ``observed``: the observed level per
+    basin (:func:`monitor.forecasting.observed_level.latest_observed`)."""
+    wb = config.water_body(outputs.water_body_id)
+    analysis = from_epoch_days(outputs.analysis_d)
+    message = outputs.message
+    warm = store.runs_since_cold_start(conn, wb.id, analysis, config.filter.spin_up_cycles,
+                                       dt.timedelta(days=config.filter.cold_start_gap_days)) \
+        >= config.filter.spin_up_cycles
+    if outputs.forecasts and not warm:
+        message = (message + "; " if message else "") + \
+            f"spin-up: alert rules start after {config.filter.spin_up_cycles} cycles"
+    if outputs.checkpoint is not None:
+        store.save_checkpoint(conn, wb.id, analysis, outputs.checkpoint, now=now)
+    run_id = store.save_forecast_run(conn, wb.id, analysis, outputs.status, message,
+                                     outputs.diagnostics, forecast_rows(outputs),
+                                     members=member_rows(outputs), now=now)
+    events = []
+    if outputs.forecasts and warm:
+        events = alerts.evaluate_run(conn, config, wb.id, run_id, observed, now or analysis)
+    if outputs.forecasts:
+        maxima = alerts.exceedance_maxima(conn, run_id, analysis, wb.alerts.horizon_days)
+        webhooks.enqueue_forecast(conn, config, wb, run_id=run_id, analysis=analysis, status=outputs.status,
+                                  maxima=maxima, now=now or analysis)
     return {"water_body": wb.id, "analysis_utc": analysis.isoformat(), "status": outputs.status,
             "message": message, "run_id": run_id, "events": events}

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 
+import pandas as pd
 from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
@@ -15,10 +16,14 @@ from monitor.store.readings import readings_frame
 OBSERVED_LEVEL_VARIABLES = ("phycocyanin", "chlorophyll_a", "chlorophyll_fluorescence")
 
 
-def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-                    window: dt.timedelta = dt.timedelta(days=1)) -> dict[str, float | None]:
+def latest_observed(engine: Engine | None, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                    window: dt.timedelta = dt.timedelta(days=1), *,
+                    frame: pd.DataFrame | None = None) -> dict[str, float | None]:
     """Mean QC-passed reading per basin over the last day [µg/L] of the first variable of
-    ``OBSERVED_LEVEL_VARIABLES`` that the basin is monitored for (None without one that day)."""
+    ``OBSERVED_LEVEL_VARIABLES`` that the basin is monitored for (None without one that day).
+
+    ``frame``: QC-passed readings (flag 1) over [analysis − window, analysis] that hold at least
+    those of ``wb``'s stations, when already read (else read from ``engine``)."""
     out: dict[str, float | None] = {b.id: None for b in wb.basins}
     variable_of: dict[str, str] = {}
     stations: dict[str, str] = {}
@@ -31,8 +36,11 @@ def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysi
                 break
     if not stations:
         return out
-    frame = readings_frame(engine, stations=list(stations), variables=sorted(set(variable_of.values())),
-                           start=analysis - window, end=analysis, max_flag=1)
+    if frame is None:
+        frame = readings_frame(engine, stations=list(stations), variables=sorted(set(variable_of.values())),
+                               start=analysis - window, end=analysis, max_flag=1)
+    else:
+        frame = frame[frame.station_id.isin(list(stations)) & frame.variable.isin(set(variable_of.values()))]
     if not frame.empty:
         frame = frame[frame.variable == frame.station_id.map(lambda s: variable_of[stations[s]])]
         for station, value in frame.groupby("station_id").value.mean().items():

@@ -3,12 +3,14 @@
 A cycle's compute step is a pure function of picklable inputs
 (``monitor.forecasting.cycle.compute``), so it can run on any worker. ``address`` is a
 scheduler address (``tcp://host:8786``) or ``"local"`` for a cluster of
-worker processes on this machine.
+worker processes on this machine. :func:`stream` submits many water bodies'
+tasks and yields their results as they finish (``distributed.as_completed``),
+so the driver records while the workers compute.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 
 
 class DaskRunner:
@@ -30,6 +32,11 @@ class DaskRunner:
                 self._client = Client(self.address)
         return self._client
 
+    @property
+    def client(self):
+        """The distributed ``Client`` (connected on first use)."""
+        return self._connect()
+
     def map(self, fn: Callable, items: Sequence) -> list:
         client = self._connect()
         return client.gather(client.map(fn, list(items), pure=False))
@@ -40,3 +47,30 @@ class DaskRunner:
         if self._cluster is not None:
             self._cluster.close()
         self._client = self._cluster = None
+
+
+def stream(client, fn: Callable, shared, items: Sequence, *, key_of: Callable, retries: int = 2
+           ) -> Iterator[tuple[str, object]]:
+    """``fn(shared, item)`` for each item on a Dask distributed ``client``, yielded as each finishes.
+
+    ``shared`` (the config) goes to every worker once (``scatter(broadcast=True)``); each item is sent
+    once, to the worker that runs it. Yields (``key_of(item)``, result), or (key, exception) for an
+    item whose task failed ``retries`` + 1 times (a worker lost mid-task is not a failure: the
+    scheduler runs its tasks again elsewhere, up to ``distributed.scheduler.allowed-failures``
+    times, and raises ``KilledWorker`` after that).
+    """
+    from distributed import as_completed
+
+    if not items:
+        return
+    shared_future = client.scatter(shared, broadcast=True, hash=False)
+    futures = {client.submit(fn, shared_future, item, pure=False, retries=retries): key_of(item) for item in items}
+    for future in as_completed(futures):
+        key = futures[future]
+        try:
+            result = future.result()
+        except Exception as exc:  # noqa: BLE001 - reported as that item's failure; the others go on
+            yield key, exc
+        else:
+            yield key, result
+        future.release()
