@@ -1,74 +1,53 @@
-"""The gather step for many water bodies at once: a few set-based queries, then pure assembly.
+"""The gather step for many water bodies at once: a few set-based queries, then the same assembly.
 
-:func:`monitor.forecasting.cycle.gather` reads one water body with about a
-dozen queries; for thousands of water bodies the driver's round trips to
-the database dominate. :func:`fetch` reads a chunk of water bodies with one
-query per kind of data (newest checkpoints, readings of all their stations,
-daily means for the observed history, the newest weather forecasts, the
-verified record the blend is set from, candidate late readings), split per
-water body in memory into picklable :class:`RawInputs`; :func:`assemble`
-turns one of them into exactly the :class:`~monitor.forecasting.cycle.CycleInputs`
-that ``cycle.gather`` returns (a property test compares them). ``assemble``
-does no I/O, so it may run on a Dask worker beside ``compute``.
+:func:`monitor.forecasting.cycle.gather` is :func:`~monitor.forecasting.cycle.fetch`
+(about a dozen queries for one water body) followed by the pure
+:func:`~monitor.forecasting.cycle.assemble`. For thousands of water bodies
+the driver's round trips to the database dominate, so :func:`fetch` here
+reads a chunk of water bodies with one query per kind of data (newest
+checkpoints, readings of all their stations, censored readings, first-guess
+readings, daily means for the observed history, the newest weather
+forecasts, the verified record the blend is set from, candidate late
+readings) and splits them per water body in memory into the same
+:class:`~monitor.forecasting.cycle.FetchedInputs`; ``cycle.assemble`` makes
+the inputs from either (a property test compares them), and may run on a
+Dask worker beside ``compute``.
 
-The rare case of late readings (stamped before the newest checkpoint,
-received after it) is resolved per water body with
-:func:`monitor.forecasting.late.late_restart`; a normal day finds none.
+Where a cycle starts (cold-start gap, late readings) is decided for each
+water body by :func:`monitor.forecasting.cycle.cycle_start`; a live
+re-analysis for late readings (rare: a normal day finds no candidate) and a
+replay's reporting delays are looked up per water body.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 from collections.abc import Iterator, Sequence
-from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 from sqlalchemy import and_, func, select, tuple_
 from sqlalchemy.engine import Engine
 
-from assimilation.observe import OBSERVABLE_KINDS
 from monitor.config import Config, WaterBodyConfig
-from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.forecasting import cycle
-from monitor.forecasting.blend_setup import RECORD_DAYS, blend_settings
-from monitor.forecasting.drivers import StationSeries, driver_stations, observed_drivers
-from monitor.forecasting.history import (
-    CLIMATOLOGY_MARGIN_DAYS,
-    CLIMATOLOGY_YEARS,
-    OBSERVED_BY,
-    RECENT_DAYS,
-    REGRESSOR,
-    ObservedHistory,
-    series_by_basin,
-)
-from monitor.forecasting.late import late_restart
+from monitor.forecasting.blend_setup import RECORD_DAYS
+from monitor.forecasting.history import HISTORY_VARIABLES, basin_stations, history_windows
+from monitor.forecasting.observations import OBSERVED_VARIABLES
 from monitor.store import schema
 from monitor.store.daily import daily_means
+from monitor.store.late import stations_with_late_readings
 from monitor.store.readings import readings_frame
-from monitor.timeutil import to_epoch_days, utc_series_from_db
+from monitor.timeutil import utc_series_from_db
 from monitor.verification.records import RECORD_COLUMNS
 
-DAY = dt.timedelta(days=1)
 #: Water bodies per set of queries: bounds the rows held in memory at once (readings of a chunk).
 CHUNK = 100
-HISTORY_VARIABLES = sorted({v for vs in OBSERVED_BY.values() for v in vs} | {REGRESSOR})
 
-
-@dataclass
-class RawInputs:
-    """What the store holds for one water body's cycle, read in bulk; :func:`assemble` makes the inputs."""
-
-    water_body_id: str
-    analysis: dt.datetime
-    start: dt.datetime
-    checkpoint: bytes | None
-    late_note: str
-    readings: pd.DataFrame                  # station_readings over the cycle's window
-    first_guess_readings: pd.DataFrame | None  # cold start: readings around the start
-    weather: pd.DataFrame                   # newest weather forecast (or empty)
-    history_daily: list[pd.DataFrame] = field(default_factory=list)  # daily means per history window
-    records: pd.DataFrame | None = None     # verified record since the blend's window
+#: One water body's fetched inputs (what ``cycle.fetch`` reads for it).
+RawInputs = cycle.FetchedInputs
+#: The pure assembly shared with ``cycle.gather``.
+assemble = cycle.assemble
 
 
 def gather_many(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig], analysis: dt.datetime, *,
@@ -78,7 +57,7 @@ def gather_many(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig
 
     A water body whose inputs cannot be made yields its exception instead
     (one water body's failure never stops the others); a query of a whole
-    chunk that fails falls back to ``cycle.gather`` for each of its water bodies.
+    chunk that fails falls back to fetching each of its water bodies alone.
     """
     for raw_id, raw in fetch_many(engine, config, bodies, analysis, season_start=season_start, replay=replay,
                                   chunk=chunk):
@@ -112,64 +91,43 @@ def fetch_many(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig]
 
 def fetch(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig], analysis: dt.datetime, *,
           season_start: dt.datetime | None = None, replay: bool = False) -> dict[str, RawInputs]:
-    """Everything the cycles of ``bodies`` at ``analysis`` (aware UTC) need, in one query per kind."""
+    """What ``cycle.fetch`` reads for each of ``bodies`` at ``analysis`` (aware UTC), in one query per kind."""
     found = latest_checkpoints(engine, [wb.id for wb in bodies], analysis - dt.timedelta(seconds=1))
-    late_notes = dict.fromkeys((wb.id for wb in bodies), "")
-    if not replay:
-        for wb_id in _with_late_candidates(engine, config, bodies, found):
-            wb = config.water_body(wb_id)
-            ckpt, late_notes[wb_id] = late_restart(engine, config, wb, analysis, found[wb_id][:2])
-            found[wb_id] = (*ckpt, None)
-    starts = {wb.id: found[wb.id][0] if wb.id in found else (season_start or (analysis - DAY)) for wb in bodies}
-    windows = {wb.id: (min(starts[wb.id] - dt.timedelta(days=3), analysis - dt.timedelta(days=14)), analysis)
-               for wb in bodies}
-    stations = {wb.id: _stations(config, wb) for wb in bodies}
-    readings = _split_readings(engine, config, stations, windows)
-    cold = [wb for wb in bodies if wb.id not in found]
-    guess_readings = _split_readings(engine, config, {wb.id: stations[wb.id] for wb in cold},
-                                     {wb.id: (starts[wb.id] - dt.timedelta(days=14), starts[wb.id] + dt.timedelta(days=2))
-                                      for wb in cold})
+    candidates = set() if replay else _late_candidates(engine, config, bodies, found)
+    starts: dict[str, tuple[dt.datetime, bytes | None, str]] = {}
+    for wb in bodies:
+        newest = found[wb.id][:2] if wb.id in found else None
+        # without a candidate late reading, late_restart would keep the checkpoint and say nothing
+        restart = None if replay or wb.id in candidates else _keep
+        starts[wb.id] = cycle.cycle_start(engine, config, wb, analysis, newest, season_start=season_start,
+                                          replay=replay, restart=restart)
+    stations = {wb.id: cycle.cycle_stations(config, wb) for wb in bodies}
+    readings = _split(engine, stations, {w: cycle.reading_window(s[0], analysis) for w, s in starts.items()},
+                      max_flag=cycle.assimilated_flag(config))
+    cold = [wb.id for wb in bodies if starts[wb.id][1] is None]
+    guess = _split(engine, {w: stations[w] for w in cold},
+                   {w: cycle.first_guess_window(starts[w][0]) for w in cold}, max_flag=cycle.assimilated_flag(config))
+    censored = _split(engine, {wb.id: [s.id for s in config.stations_of(wb.id) if s.basin is not None]
+                               for wb in bodies},
+                      {w: (s[0], analysis) for w, s in starts.items()}, open_start=True,
+                      variables=OBSERVED_VARIABLES, max_flag=0, include_censored=True)
     weather = latest_weather_forecasts(engine, sorted({wb.weather_station for wb in bodies if wb.weather_station}),
                                        analysis)
     history = _history_daily(engine, config, bodies, analysis)
     records = _records(engine, [wb.id for wb in bodies], analysis - dt.timedelta(days=RECORD_DAYS))
-    empty_weather = pd.DataFrame()
     return {wb.id: RawInputs(
-        water_body_id=wb.id, analysis=analysis, start=starts[wb.id],
-        checkpoint=found[wb.id][1] if wb.id in found else None, late_note=late_notes[wb.id],
-        readings=readings[wb.id], first_guess_readings=guess_readings.get(wb.id),
-        weather=weather.get(wb.weather_station, _EMPTY_WEATHER) if wb.weather_station else empty_weather,
-        history_daily=history[wb.id], records=records.get(wb.id)) for wb in bodies}
+        water_body_id=wb.id, analysis=analysis, start=starts[wb.id][0], checkpoint=starts[wb.id][1],
+        late_note=starts[wb.id][2], readings=readings[wb.id],
+        censored=censored[wb.id][censored[wb.id].censored], first_guess_readings=guess.get(wb.id),
+        weather=weather.get(wb.weather_station, _EMPTY_WEATHER) if wb.weather_station else pd.DataFrame(),
+        history_daily=history[wb.id],
+        records=records[wb.id] if wb.id in records else pd.DataFrame(columns=RECORD_COLUMNS),
+        replay=replay) for wb in bodies}
 
 
-def assemble(config: Config, wb: WaterBodyConfig, raw: RawInputs) -> cycle.CycleInputs:
-    """The cycle's inputs from what :func:`fetch` read: exactly what ``cycle.gather`` returns. Pure."""
-    spec = model_spec(wb)
-    cfg = filter_config(config, wb)
-    analysis, start = raw.analysis, raw.start
-    guess = None
-    if raw.checkpoint is None:
-        guess = cycle.first_guess(None, config, wb, spec, start, frame=raw.first_guess_readings)
-    series = StationSeries(raw.readings)
-    notes: list[str] = []
-    drivers = observed_drivers(series, config, wb, start, analysis, notes)
-    horizon = wb.alerts.horizon_days
-    history = _history(config, wb, raw.history_daily)
-    scenarios = cycle.outlook_drivers(None, config, wb, series, analysis, horizon, history=history, notes=notes,
-                                      weather=raw.weather)
-    records = raw.records if raw.records is not None else pd.DataFrame(columns=RECORD_COLUMNS)
-    return cycle.CycleInputs(
-        water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
-        checkpoint=raw.checkpoint, start_d=float(to_epoch_days(start)), initial_state=guess,
-        seed=config.filter.seed + sum(map(ord, wb.id)),
-        observations=cycle.to_observations(cycle.observations_frame(raw.readings, config, wb, start), config, wb),
-        drivers=drivers, forecast_drivers=scenarios,
-        horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
-        window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
-        history=history, substitutions=tuple(notes), late_note=raw.late_note,
-        publish_blend=config.filter.published == "blend",
-        blend=blend_settings(records, analysis, horizon),
-        sensor_basins=tuple(config.station(s).basin for s in chlorophyll_sensors(config, wb)))
+def _keep(engine, config, wb, analysis, found):
+    """The restart of a water body without late readings: its newest checkpoint, no note."""
+    return found, ""
 
 
 # --------------------------------------------------------------------------
@@ -189,55 +147,40 @@ def latest_checkpoints(engine: Engine, water_body_ids: Sequence[str], at_or_befo
         return {r.water_body_id: (r.time_utc, bytes(r.data), r.created_at) for r in conn.execute(q)}
 
 
-def _with_late_candidates(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig],
-                          found: dict[str, tuple]) -> list[str]:
-    """The water bodies with readings stamped at or before their newest checkpoint but received after it
-    was stored (what :func:`monitor.forecasting.late.late_restart` looks for), in one query."""
-    basin_stations = {wb.id: [s.id for s in config.stations_of(wb.id) if s.basin] for wb in bodies if wb.id in found}
-    basin_stations = {k: v for k, v in basin_stations.items() if v}
-    if not basin_stations:
-        return []
-    covered = max(found[w][0] for w in basin_stations)
-    created = min(found[w][2] for w in basin_stations)
-    r, b = schema.readings.c, schema.ingest_batches.c
-    max_flag = 3 if config.filter.assimilate_suspect else 1
-    q = (select(r.station_id, func.max(r.time_utc), func.min(r.time_utc), func.max(b.received_at))
-         .select_from(schema.readings.join(schema.ingest_batches, r.batch_id == b.id))
-         .where(r.station_id.in_(sorted({s for v in basin_stations.values() for s in v})),
-                r.variable.in_(list(OBSERVABLE_KINDS)), r.qc_flag <= max_flag, r.value.is_not(None),
-                r.time_utc <= covered, b.received_at > created)
-         .group_by(r.station_id))
-    with engine.connect() as conn:
-        stations_with = {row[0] for row in conn.execute(q)}
-    # any candidate station: late_restart decides exactly (it queries with the body's own times)
-    return [w for w, ids in basin_stations.items() if stations_with.intersection(ids)]
+def _late_candidates(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig],
+                     found: dict[str, tuple]) -> set[str]:
+    """The water bodies that may have late readings (stamped at or before their newest checkpoint,
+    received after it was stored: what :func:`monitor.forecasting.late.late_restart` looks for), from
+    one query with the chunk's latest checkpoint time and earliest creation time."""
+    stations = {wb.id: [s.id for s in config.stations_of(wb.id) if s.basin] for wb in bodies if wb.id in found}
+    stations = {k: v for k, v in stations.items() if v}
+    if not stations:
+        return set()
+    late = stations_with_late_readings(
+        engine, stations=sorted({s for v in stations.values() for s in v}), variables=OBSERVED_VARIABLES,
+        covered_until=max(found[w][0] for w in stations), received_after=min(found[w][2] for w in stations),
+        max_flag=cycle.assimilated_flag(config))
+    return {w for w, ids in stations.items() if late.intersection(ids)}
 
 
-def _stations(config: Config, wb: WaterBodyConfig) -> list[str]:
-    """The stations ``cycle.station_readings`` reads for ``wb``."""
-    return sorted({s.id for s in config.stations_of(wb.id)} | set(driver_stations(config, wb)))
-
-
-def _split_readings(engine: Engine, config: Config, stations: dict[str, list[str]],
-                    windows: dict[str, tuple[dt.datetime, dt.datetime]]) -> dict[str, pd.DataFrame]:
-    """Per water body, its stations' readings in its window [start, end]: one query over the union."""
+def _split(engine: Engine, stations: dict[str, list[str]], windows: dict[str, tuple[dt.datetime, dt.datetime]], *,
+           open_start: bool = False, **query) -> dict[str, pd.DataFrame]:
+    """Per water body, its stations' readings in its window [start, end] ((start, end] with
+    ``open_start``), as :func:`readings_frame` with ``query`` gives them: one query over the union."""
     if not stations:
         return {}
-    max_flag = 3 if config.filter.assimilate_suspect else 1
     union = sorted({s for ids in stations.values() for s in ids})
-    frame = readings_frame(engine, stations=union, start=min(w[0] for w in windows.values()),
-                           end=max(w[1] for w in windows.values()), max_flag=max_flag)
-    groups = {k: v for k, v in frame.groupby("station_id", sort=False).indices.items()} if len(frame) else {}
-    times = frame.time_utc
+    frame = readings_frame(engine, stations=union, start=min(windows[w][0] for w in stations),
+                           end=max(windows[w][1] for w in stations), **query)
+    groups = frame.groupby("station_id", sort=False).indices if len(frame) else {}
+    times = frame.time_utc.dt.tz_convert(None).to_numpy()
     out = {}
     for wb_id, ids in stations.items():
-        rows = np.concatenate([groups[s] for s in ids if s in groups]) if any(s in groups for s in ids) \
-            else np.array([], dtype=int)
-        rows.sort()  # back to the frame's order: time, station, variable, source
-        sub = frame.iloc[rows]
-        start, end = windows[wb_id]
-        sub = sub[(times.iloc[rows] >= pd.Timestamp(start)).to_numpy() & (times.iloc[rows] <= pd.Timestamp(end)).to_numpy()]
-        out[wb_id] = sub.reset_index(drop=True)
+        rows = np.sort(np.concatenate([groups[s] for s in ids if s in groups] or [np.array([], dtype=np.intp)]))
+        start, end = (np.datetime64(pd.Timestamp(t).tz_convert("UTC").tz_localize(None)) for t in windows[wb_id])
+        t = times[rows]
+        keep = ((t > start) if open_start else (t >= start)) & (t <= end)
+        out[wb_id] = frame.iloc[rows[keep]].reset_index(drop=True)  # rows back in the frame's order
     return out
 
 
@@ -270,46 +213,25 @@ def latest_weather_forecasts(engine: Engine, station_ids: Sequence[str], issued_
             .reset_index(drop=True) for s, sub in frame.groupby("station_id", sort=False)}
 
 
-def _history_windows(wb: WaterBodyConfig, analysis: dt.datetime) -> list[tuple[dt.datetime, dt.datetime]]:
-    """The windows of :func:`monitor.forecasting.history.observed_history`."""
-    windows = [(analysis - RECENT_DAYS * DAY, analysis)]
-    for years in range(1, CLIMATOLOGY_YEARS + 1):
-        centre = analysis - dt.timedelta(days=round(365.25 * years))
-        windows.append((centre - CLIMATOLOGY_MARGIN_DAYS * DAY,
-                        min(centre + (wb.alerts.horizon_days + CLIMATOLOGY_MARGIN_DAYS) * DAY, windows[0][0])))
-    return windows
-
-
 def _history_daily(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig], analysis: dt.datetime
                    ) -> dict[str, list[pd.DataFrame]]:
-    """Per water body, the daily means of its basin stations in each history window (one query per window)."""
-    basin_stations = {wb.id: [s.id for s in config.stations_of(wb.id) if s.basin] for wb in bodies}
-    out: dict[str, list[pd.DataFrame]] = {wb.id: [] for wb in bodies}
-    by_window: dict[tuple, list[str]] = {}
-    for wb in bodies:
-        if basin_stations[wb.id]:
-            for k, w in enumerate(_history_windows(wb, analysis)):
-                by_window.setdefault((k, *w), []).append(wb.id)
-    for (_k, a, b), ids in sorted(by_window.items()):
-        if not b > a:
-            continue
-        union = sorted({s for w in ids for s in basin_stations[w]})
-        frame = daily_means(engine, stations=union, variables=HISTORY_VARIABLES, anchor=analysis, start=a, end=b)
+    """Per water body, what :func:`monitor.forecasting.history.history_daily` returns: one query per
+    distinct window over the basin stations of every water body with that window."""
+    stations = {wb.id: list(basin_stations(config, wb)) for wb in bodies}
+    windows = {wb.id: history_windows(wb, analysis) if stations[wb.id] else [] for wb in bodies}
+    users: dict[tuple[dt.datetime, dt.datetime], list[str]] = {}
+    for wb_id, ws in windows.items():
+        for w in ws:
+            users.setdefault(w, []).append(wb_id)
+    split: dict[tuple, dict[str, pd.DataFrame]] = {}
+    for (a, b), ids in users.items():
+        union = sorted({s for w in ids for s in stations[w]})
+        frame = daily_means(engine, stations=union, variables=list(HISTORY_VARIABLES), anchor=analysis, start=a, end=b)
         groups = frame.groupby("station_id", sort=False).indices if len(frame) else {}
-        for w in ids:
-            rows = np.sort(np.concatenate([groups[s] for s in basin_stations[w] if s in groups] or [np.array([], int)]))
-            out[w].append(frame.iloc[rows].reset_index(drop=True))
-    return out
-
-
-def _history(config: Config, wb: WaterBodyConfig, frames: list[pd.DataFrame]) -> ObservedHistory:
-    """:func:`monitor.forecasting.history.observed_history` from its windows' daily means."""
-    basin_of = {s.id: s.basin for s in config.stations_of(wb.id) if s.basin}
-    if not basin_of or not frames:
-        return ObservedHistory()
-    frame = pd.concat([f for f in frames if len(f)], ignore_index=True) if any(len(f) for f in frames) \
-        else frames[0]
-    return series_by_basin(frame.drop_duplicates(["station_id", "variable", "day_end_utc"]), basin_of)
+        split[(a, b)] = {w: frame.iloc[np.sort(np.concatenate([groups[s] for s in stations[w] if s in groups]
+                                                              or [np.array([], dtype=np.intp)]))]
+                         .reset_index(drop=True) for w in ids}
+    return {wb_id: [split[w][wb_id] for w in ws] for wb_id, ws in windows.items()}
 
 
 def _records(engine: Engine, water_body_ids: Sequence[str], since: dt.datetime) -> dict[str, pd.DataFrame]:

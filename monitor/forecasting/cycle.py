@@ -40,9 +40,15 @@ from monitor.alerting import webhooks
 from monitor.config import Config, WaterBodyConfig
 from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.forecasting.baselines import baseline_members
-from monitor.forecasting.blend_setup import read_blend_settings
+from monitor.forecasting.blend_setup import RECORD_DAYS, blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
-from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
+from monitor.forecasting.history import (
+    OBSERVED_BY,
+    ObservedHistory,
+    history_daily,
+    history_from_daily,
+    seasonal_mean,
+)
 from monitor.forecasting.late import available_in_replay, delayed_restart, late_restart
 from monitor.forecasting.observations import OBSERVED_VARIABLES, to_observations
 from monitor.forecasting.observed_level import latest_observed
@@ -51,6 +57,7 @@ from monitor.forecasting.quantities import QUANTITIES, quantity_series
 from monitor.store import runs as store
 from monitor.store.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import from_epoch_days, to_epoch_days
+from monitor.verification.live import stored_records
 
 #: Air-temperature offsets [°C] of the forecast's driver scenarios; members are
 #: spread over them so the forecast carries weather uncertainty (common practice
@@ -96,9 +103,18 @@ class CycleInputs:
 def station_readings(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
                      end: dt.datetime) -> pd.DataFrame:
     """Stored readings of every station of ``wb`` (basins, gauges, weather) in [start, end]."""
-    stations = sorted({s.id for s in config.stations_of(wb.id)} | set(driver_stations(config, wb)))
-    max_flag = 3 if config.filter.assimilate_suspect else 1
-    return readings_frame(engine, stations=stations, start=start, end=end, max_flag=max_flag)
+    return readings_frame(engine, stations=cycle_stations(config, wb), start=start, end=end,
+                          max_flag=assimilated_flag(config))
+
+
+def cycle_stations(config: Config, wb: WaterBodyConfig) -> list[str]:
+    """Every station a cycle of ``wb`` reads: its basins' and gauges' and its drivers'."""
+    return sorted({s.id for s in config.stations_of(wb.id)} | set(driver_stations(config, wb)))
+
+
+def assimilated_flag(config: Config) -> int:
+    """The worst QC flag a cycle reads (3 with ``[filter] assimilate_suspect``, else 1: passed only)."""
+    return 3 if config.filter.assimilate_suspect else 1
 
 
 def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig, after: dt.datetime) -> pd.DataFrame:
@@ -113,10 +129,18 @@ def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
 def assimilable(engine: Engine, config: Config, wb: WaterBodyConfig, frame: pd.DataFrame, after: dt.datetime,
                 until: dt.datetime, *, replay: bool = False) -> pd.DataFrame:
     """The plain readings of ``frame`` and the censored ones of the store that the filter may use in
-    (after, until], with columns ``censored`` and ``detection_limit``; in a replay only those
-    available by ``until`` (time plus the station's reporting delay)."""
+    (after, until] (:func:`assimilable_rows`)."""
+    return assimilable_rows(frame, censored_frame(engine, config, wb, after, until), config, wb, after, until,
+                            replay=replay)
+
+
+def assimilable_rows(frame: pd.DataFrame, censored: pd.DataFrame, config: Config, wb: WaterBodyConfig,
+                     after: dt.datetime, until: dt.datetime, *, replay: bool = False) -> pd.DataFrame:
+    """The plain readings of ``frame`` later than ``after`` and the ``censored`` ones (of
+    :func:`censored_frame`) that the filter may use, with columns ``censored`` and ``detection_limit``;
+    in a replay only those available by ``until`` (time plus the station's reporting delay). No I/O."""
     plain = observations_frame(frame, config, wb, after).assign(censored=False, detection_limit=np.nan)
-    parts = [f for f in (plain, censored_frame(engine, config, wb, after, until)) if not f.empty]
+    parts = [f for f in (plain, censored) if not f.empty]
     both = pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
     return available_in_replay(both, config, wb, until) if replay else both
 
@@ -204,18 +228,43 @@ def outlook_drivers(engine: Engine, config: Config, wb: WaterBodyConfig, series:
                             notes=notes)
 
 
-def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-           *, season_start: dt.datetime | None = None, replay: bool = False) -> CycleInputs:
-    """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC).
+@dataclass
+class FetchedInputs:
+    """What the store holds for one cycle of one water body; :func:`assemble` makes the
+    :class:`CycleInputs` from it without I/O. Read one water body at a time by :func:`fetch`, many at
+    once by :func:`monitor.forecasting.batch_gather.fetch`."""
 
-    ``replay``: readings count as available by their time stamps plus their
-    station's ``reporting_delay_days`` (a replay of a stored history, where
-    arrival times mean nothing); those that became available since the
-    newest checkpoint are re-analysed like late readings.
+    water_body_id: str
+    analysis: dt.datetime
+    start: dt.datetime
+    checkpoint: bytes | None
+    late_note: str
+    #: :func:`station_readings` over :func:`reading_window`
+    readings: pd.DataFrame
+    #: :func:`censored_frame` over (start, analysis]
+    censored: pd.DataFrame
+    #: cold start: :func:`station_readings` over :func:`first_guess_window` (None when warm)
+    first_guess_readings: pd.DataFrame | None
+    #: the newest weather forecast issued by the analysis (empty without a weather station)
+    weather: pd.DataFrame
+    #: daily means per history window (:func:`monitor.forecasting.history.history_daily`)
+    history_daily: list[pd.DataFrame]
+    #: the verified record of the blend's window (:func:`monitor.verification.live.stored_records`)
+    records: pd.DataFrame
+    replay: bool = False
+
+
+def cycle_start(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                found: tuple[dt.datetime, bytes] | None, *, season_start: dt.datetime | None = None,
+                replay: bool = False, restart: Callable | None = None) -> tuple[dt.datetime, bytes | None, str]:
+    """Where the cycle of ``wb`` at ``analysis`` starts: (start time, checkpoint or None for a cold
+    start, note for the run's message), from ``found``, the newest checkpoint before ``analysis``.
+
+    A checkpoint older than ``[filter] cold_start_gap_days`` is not used (a cold start); otherwise
+    late readings may move the start back (:func:`monitor.forecasting.late.late_restart`, in a
+    replay :func:`~monitor.forecasting.late.delayed_restart`; ``restart`` replaces that choice). A
+    cold start begins at ``season_start`` when it is within the gap, else a day before ``analysis``.
     """
-    spec = model_spec(wb)
-    cfg = filter_config(config, wb)
-    found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
     late_note = ""
     gap = dt.timedelta(days=config.filter.cold_start_gap_days)
     if found is not None and analysis - found[0] > gap:
@@ -223,39 +272,88 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
                      f"{config.filter.cold_start_gap_days:g} days old (cold_start_gap_days)")
         found = None
     if found is not None:
-        restart = delayed_restart if replay else late_restart
+        restart = restart or (delayed_restart if replay else late_restart)
         found, late_note = restart(engine, config, wb, analysis, found)
     elif not late_note and not replay:
         late_note = "cold start: no stored checkpoint"
     if found is not None:
-        start, blob, guess = found[0], found[1], None
-    else:
-        start = season_start if season_start is not None and analysis - season_start <= gap \
-            else analysis - dt.timedelta(days=1)
-        blob, guess = None, first_guess(engine, config, wb, spec, start)
-    # One query for the cycle: from a few days before the checkpoint (to bridge
-    # driver gaps) or two weeks before the analysis (for the outlook), whichever is earlier.
-    frame = station_readings(engine, config, wb, min(start - dt.timedelta(days=3), analysis - dt.timedelta(days=14)),
-                             analysis)
-    series = StationSeries(frame)
+        return found[0], found[1], late_note
+    start = season_start if season_start is not None and analysis - season_start <= gap \
+        else analysis - dt.timedelta(days=1)
+    return start, None, late_note
+
+
+def reading_window(start: dt.datetime, analysis: dt.datetime) -> tuple[dt.datetime, dt.datetime]:
+    """The readings one cycle reads: from a few days before its start (to bridge driver gaps) or two
+    weeks before the analysis (for the outlook), whichever is earlier, to the analysis."""
+    return min(start - dt.timedelta(days=3), analysis - dt.timedelta(days=14)), analysis
+
+
+def first_guess_window(start: dt.datetime) -> tuple[dt.datetime, dt.datetime]:
+    """The readings a cold start's first guess is made from (:func:`first_guess`)."""
+    return start - dt.timedelta(days=14), start + dt.timedelta(days=2)
+
+
+def fetch(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+          *, season_start: dt.datetime | None = None, replay: bool = False) -> FetchedInputs:
+    """Everything one cycle of ``wb`` at ``analysis`` reads from the store (see :func:`gather`)."""
+    found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
+    start, blob, late_note = cycle_start(engine, config, wb, analysis, found, season_start=season_start,
+                                         replay=replay)
+    weather = (latest_driver_forecast(engine, wb.weather_station, issued_at_or_before=analysis)
+               if wb.weather_station else pd.DataFrame())
+    return FetchedInputs(
+        water_body_id=wb.id, analysis=analysis, start=start, checkpoint=blob, late_note=late_note,
+        readings=station_readings(engine, config, wb, *reading_window(start, analysis)),
+        censored=censored_frame(engine, config, wb, start, analysis),
+        first_guess_readings=(station_readings(engine, config, wb, *first_guess_window(start))
+                              if blob is None else None),
+        weather=weather, history_daily=history_daily(engine, config, wb, analysis),
+        records=stored_records(engine, wb.id, since=analysis - dt.timedelta(days=RECORD_DAYS)), replay=replay)
+
+
+def assemble(config: Config, wb: WaterBodyConfig, raw: FetchedInputs) -> CycleInputs:
+    """The cycle's inputs from what was fetched: the cold start's first guess, observed and forecast
+    drivers, the filter's observations, the observed history and the blend's settings. No I/O, so it
+    may run on a Dask worker beside :func:`compute`."""
+    spec = model_spec(wb)
+    cfg = filter_config(config, wb)
+    analysis, start = raw.analysis, raw.start
+    guess = None if raw.checkpoint is not None else \
+        first_guess(None, config, wb, spec, start, frame=raw.first_guess_readings)
+    series = StationSeries(raw.readings)
     notes: list[str] = []
     drivers = observed_drivers(series, config, wb, start, analysis, notes)
     horizon = wb.alerts.horizon_days
-    history = observed_history(engine, config, wb, analysis)
-    scenarios = outlook_drivers(engine, config, wb, series, analysis, horizon, history=history, notes=notes)
+    history = history_from_daily(config, wb, raw.history_daily)
+    scenarios = outlook_drivers(None, config, wb, series, analysis, horizon, history=history, notes=notes,
+                                weather=raw.weather)
+    observed = assimilable_rows(raw.readings, raw.censored, config, wb, start, analysis, replay=raw.replay)
     return CycleInputs(
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
-        checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
+        checkpoint=raw.checkpoint, start_d=float(to_epoch_days(start)), initial_state=guess,
         seed=config.filter.seed + sum(map(ord, wb.id)),
-        observations=to_observations(assimilable(engine, config, wb, frame, start, analysis, replay=replay),
-                                     config, wb),
+        observations=to_observations(observed, config, wb),
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
         window_days=config.filter.window_days, basin_ids=tuple(b.id for b in wb.basins),
-        history=history, substitutions=tuple(notes), late_note=late_note,
+        history=history, substitutions=tuple(notes), late_note=raw.late_note,
         publish_blend=config.filter.published == "blend",
-        blend=read_blend_settings(engine, wb, analysis),
+        blend=blend_settings(raw.records, analysis, horizon),
         sensor_basins=tuple(config.station(s).basin for s in chlorophyll_sensors(config, wb)))
+
+
+def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+           *, season_start: dt.datetime | None = None, replay: bool = False) -> CycleInputs:
+    """Read everything one cycle of ``wb`` needs up to ``analysis`` (aware UTC): :func:`fetch`, then
+    :func:`assemble`.
+
+    ``replay``: readings count as available by their time stamps plus their
+    station's ``reporting_delay_days`` (a replay of a stored history, where
+    arrival times mean nothing); those that became available since the
+    newest checkpoint are re-analysed like late readings.
+    """
+    return assemble(config, wb, fetch(engine, config, wb, analysis, season_start=season_start, replay=replay))
 
 
 # --------------------------------------------------------------------------

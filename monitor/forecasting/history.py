@@ -87,23 +87,51 @@ def series_by_basin(frame: pd.DataFrame, basin_of: dict[str, str]) -> ObservedHi
     return ObservedHistory(out)
 
 
-def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> ObservedHistory:
-    """The recent and same-season-earlier daily history of ``wb``'s basins up to ``analysis``."""
-    basin_of = {s.id: s.basin for s in config.stations_of(wb.id) if s.basin}
-    if not basin_of:
-        return ObservedHistory()
-    variables = sorted({v for vs in OBSERVED_BY.values() for v in vs} | {REGRESSOR})
+#: The stored variables the history is made of.
+HISTORY_VARIABLES = tuple(sorted({v for vs in OBSERVED_BY.values() for v in vs} | {REGRESSOR}))
+
+
+def history_windows(wb: WaterBodyConfig, analysis: dt.datetime) -> list[tuple[dt.datetime, dt.datetime]]:
+    """The windows [start, end] whose daily means make the history of ``wb`` at ``analysis``: the recent
+    ``RECENT_DAYS`` and, per earlier year, the forecast window with ``CLIMATOLOGY_MARGIN_DAYS`` either
+    side (cut at the recent window); empty windows left out."""
     day = dt.timedelta(days=1)
     windows = [(analysis - RECENT_DAYS * day, analysis)]
     for years in range(1, CLIMATOLOGY_YEARS + 1):
         centre = analysis - dt.timedelta(days=round(365.25 * years))
         windows.append((centre - CLIMATOLOGY_MARGIN_DAYS * day,
                         min(centre + (wb.alerts.horizon_days + CLIMATOLOGY_MARGIN_DAYS) * day, windows[0][0])))
-    frames = [daily_means(engine, stations=list(basin_of), variables=variables, anchor=analysis, start=a, end=b)
-              for a, b in windows if b > a]
+    return [(a, b) for a, b in windows if b > a]
+
+
+def basin_stations(config: Config, wb: WaterBodyConfig) -> dict[str, str]:
+    """Station id → basin id of ``wb``'s basin stations (those the history is read from)."""
+    return {s.id: s.basin for s in config.stations_of(wb.id) if s.basin}
+
+
+def history_daily(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> list[pd.DataFrame]:
+    """The daily means of ``wb``'s basin stations in each of :func:`history_windows` (none without basin
+    stations)."""
+    stations = list(basin_stations(config, wb))
+    if not stations:
+        return []
+    return [daily_means(engine, stations=stations, variables=list(HISTORY_VARIABLES), anchor=analysis, start=a, end=b)
+            for a, b in history_windows(wb, analysis)]
+
+
+def history_from_daily(config: Config, wb: WaterBodyConfig, frames: list[pd.DataFrame]) -> ObservedHistory:
+    """The history of ``wb`` from its windows' daily means (:func:`history_daily`); no I/O."""
+    basin_of = basin_stations(config, wb)
+    if not basin_of or not frames:
+        return ObservedHistory()
     frame = pd.concat([f for f in frames if len(f)], ignore_index=True) if any(len(f) for f in frames) \
         else frames[0]
     return series_by_basin(frame.drop_duplicates(["station_id", "variable", "day_end_utc"]), basin_of)
+
+
+def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> ObservedHistory:
+    """The recent and same-season-earlier daily history of ``wb``'s basins up to ``analysis``."""
+    return history_from_daily(config, wb, history_daily(engine, config, wb, analysis))
 
 
 def seasonal_mean(history: ObservedHistory, basin: str, quantity: str, centre_d: float,
