@@ -27,14 +27,49 @@ def _per_body_and_batched(service, analysis, bodies, season_start=None, replay=F
     return per, batched
 
 
+def _write_censored(engine, config, start, end, *, received_at) -> None:
+    """Censored phycocyanin (below 0.4 µg/L) at each first buoy every 7 hours from ``start`` to ``end``, from a
+    second source; every other one at the time of a synthetic reading (a cross-source duplicate)."""
+    from sqlalchemy import insert
+
+    times = [start + k * dt.timedelta(hours=7) + (k % 2) * dt.timedelta(minutes=30)
+             for k in range(int((end - start) / dt.timedelta(hours=7)) + 1)]
+    with engine.begin() as conn:
+        batch = conn.execute(insert(schema.ingest_batches).values(
+            feed="lab", origin="test", sha256="1" * 64, archive_path=None, received_at=received_at, status="ok",
+            message="censored", received=0, accepted=0)).inserted_primary_key[0]
+        conn.execute(insert(schema.readings), [
+            dict(station_id=config.stations_of(wb.id, basin=wb.basins[0].id)[0].id, variable="phycocyanin",
+                 time_utc=t, value=None, qc_flag=9, qc_tests="", source="lab", batch_id=batch, censored=1,
+                 detection_limit=0.4) for wb in config.water_bodies for t in times])
+
+
+def _edit(delayed: bool, gap: bool):
+    """Config changes: reporting delays of the first buoys of every other lake; a short cold-start gap."""
+    def edit(data: dict) -> None:
+        if delayed:
+            for st_ in data["stations"]:
+                if st_["kind"] == "buoy" and st_["basin"] == "b1" and int(st_["id"].split("-")[1]) % 2:
+                    st_["reporting_delay_days"] = 1.25
+        if gap:
+            data["filter"]["cold_start_gap_days"] = 1.5
+    return edit
+
+
 @settings(max_examples=4, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(seed=st.integers(0, 10_000), n=st.integers(1, 4), warm=st.lists(st.booleans(), min_size=4, max_size=4),
-       hours=st.integers(0, 30), replay=st.booleans(), late=st.booleans())
-def test_the_batched_gather_equals_the_per_water_body_gather(seed, n, warm, hours, replay, late):
+       hours=st.integers(0, 30), replay=st.booleans(), late=st.booleans(), censored=st.booleans(),
+       delayed=st.booleans(), gap=st.booleans())
+def test_the_batched_gather_equals_the_per_water_body_gather(seed, n, warm, hours, replay, late, censored, delayed,
+                                                             gap):
     with tempfile.TemporaryDirectory() as folder:
-        service = synthetic_service(Path(folder), n, seed=seed, members=6, horizon_days=2)
+        # 17 days of readings reach past the latest analysis (day 16¼); the gather reads two weeks back
+        service = synthetic_service(Path(folder), n, seed=seed, members=6, horizon_days=2, days=17,
+                                    edit=_edit(delayed, gap))
         try:
             first = SEASON_START + 14 * DAY
+            if censored:
+                _write_censored(service.engine, service.config, SEASON_START, first + 3 * DAY, received_at=SEASON_START)
             # some water bodies have a checkpoint (warm), the others start cold
             warm_ids = [wb.id for wb, w in zip(service.config.water_bodies, warm) if w]
             if warm_ids:
