@@ -16,7 +16,7 @@ from flask import Blueprint, abort, current_app, jsonify, request, url_for
 from monitor.alerting.levels import level_label
 from monitor.forecasting.quantities import QUANTITIES, UNITS
 from monitor.store import status
-from web import get_config, get_engine, now, params, water_body_or_404
+from web import get_config, get_engine, listing, now, params, water_body_or_404
 from web.api_payloads import (
     BASIN_COLUMNS,
     basin_rows,
@@ -88,11 +88,15 @@ def openapi():
 
 @api.route("/water-bodies")
 def water_bodies():
-    params.accept("format")
+    params.accept("format", *listing.PARAMETERS)
     cfg = get_config()
-    if params.fmt() == "csv":
-        return csv_answer([r for wb in cfg.water_bodies for r in basin_rows(wb)], BASIN_COLUMNS, "water-bodies.csv")
-    return json_answer({"water_bodies": [describe(wb) for wb in cfg.water_bodies]})
+    fmt = params.fmt()
+    chosen = listing.listing(cfg, get_engine())
+    if fmt == "csv":
+        return csv_answer([r for wb in chosen.bodies for r in basin_rows(wb)], BASIN_COLUMNS, "water-bodies.csv",
+                          headers=chosen.link_header())
+    return json_answer({"water_bodies": [describe(wb) for wb in chosen.bodies], "summary": chosen.summary(),
+                        "paging": chosen.paging()}, chosen.link_header())
 
 
 @api.route("/water-bodies/<water_body_id>")
@@ -106,14 +110,17 @@ def water_body(water_body_id: str):
 
 @api.route("/status")
 def all_status():
-    params.accept("format")
+    params.accept("format", *listing.PARAMETERS)
     fmt = params.fmt()
     cfg, engine = get_config(), get_engine()
+    chosen = listing.listing(cfg, engine)
     payloads = [status_payload(status.water_body_overview(engine, cfg, wb, now=now()), _members())
-                for wb in cfg.water_bodies]
+                for wb in chosen.bodies]
     if fmt == "csv":
-        return csv_answer([r for p in payloads for r in status_rows(p)], status_columns(cfg), "status.csv")
-    return json_answer({"water_bodies": payloads})
+        return csv_answer([r for p in payloads for r in status_rows(p)], status_columns(cfg), "status.csv",
+                          headers=chosen.link_header())
+    return json_answer({"water_bodies": payloads, "summary": chosen.summary(), "paging": chosen.paging()},
+                       chosen.link_header())
 
 
 @api.route("/water-bodies/<water_body_id>/status")

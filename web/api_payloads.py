@@ -80,7 +80,7 @@ def paging(limit: int, offset: int, total: int) -> tuple[dict, dict]:
 
 def describe(wb) -> dict:
     return {
-        "id": wb.id, "name": wb.name, "use": wb.use, "timezone": wb.timezone,
+        "id": wb.id, "name": wb.name, "use": wb.use, "timezone": wb.timezone, "region": wb.region,
         "basins": [{"id": b.id, "name": b.name, "volume_m3": b.volume_m3, "mean_depth_m": b.mean_depth_m,
                     "area_m2": b.area_m2, "flows_to": b.flows_to} for b in wb.basins],
         "framework": status.framework_info(wb),

@@ -14,6 +14,7 @@ from monitor.alerting.caution import CAUTION
 from monitor.forecasting.quantities import QUANTITIES
 from monitor.store.status import MAX_ID
 from web.api import HISTORY_DEFAULT, HISTORY_MAX, RUNS_DEFAULT, RUNS_MAX
+from web.listing import PER_PAGE_DEFAULT, PER_PAGE_MAX
 from web.security import MAX_BODY_BYTES
 
 T = {"type": "string", "format": "date-time"}
@@ -46,7 +47,8 @@ SCHEMAS = {
     "WaterBody": _obj(["id", "name", "use", "timezone", "basins", "framework", "links"],
                       caution=_ref("Caution"), id={"type": "string"}, name={"type": "string"},
                       use={"type": "string", "enum": ["drinking-water", "recreation"]},
-                      timezone={"type": "string"}, basins={"type": "array", "items": _ref("Basin")},
+                      timezone={"type": "string"}, region={"type": ["string", "null"]},
+                      basins={"type": "array", "items": _ref("Basin")},
                       framework=_ref("Framework"), links={"type": "object", "additionalProperties": {"type": "string"}}),
     "RunSummary": _obj(["id", "analysis_utc", "created_at", "status", "message"], id={"type": "integer"},
                        analysis_utc=T, created_at=T,
@@ -56,6 +58,14 @@ SCHEMAS = {
     "Paging": _obj(["limit", "offset", "total", "next", "previous"], limit={"type": "integer", "minimum": 1},
                    offset={"type": "integer", "minimum": 0}, total={"type": "integer", "minimum": 0},
                    next={"type": ["string", "null"]}, previous={"type": ["string", "null"]}),
+    "PageLinks": _obj(["page", "per_page", "total", "pages", "next", "previous"],
+                      page={"type": "integer", "minimum": 1}, per_page={"type": "integer", "minimum": 1},
+                      total={"type": "integer", "minimum": 0}, pages={"type": "integer", "minimum": 1},
+                      next={"type": ["string", "null"]}, previous={"type": ["string", "null"]}),
+    "LevelSummary": _obj(["water_bodies", "region", "by_level"], water_bodies={"type": "integer", "minimum": 0},
+                         region={"type": ["string", "null"]},
+                         by_level={"type": "object", "description": "water bodies per current alert level (0: none)",
+                                   "additionalProperties": {"type": "integer", "minimum": 0}}),
     "BasinStatus": _obj(
         ["id", "name", "state", "level", "level_name", "since_utc", "has_forecast", "p_max_within_horizon", "observed"],
         id={"type": "string"}, name={"type": "string"},
@@ -145,17 +155,28 @@ def _list(key: str, item: str) -> dict:
                 **{key: {"type": "array", "items": _ref(item)}}, paging=_ref("Paging"))
 
 
+LISTING = [
+    _param("page", "query", {"type": "integer", "minimum": 1, "maximum": MAX_ID, "default": 1}, "page number"),
+    _param("per_page", "query", {"type": "integer", "minimum": 1, "maximum": PER_PAGE_MAX,
+                                 "default": PER_PAGE_DEFAULT}, "water bodies per page"),
+    _param("level", "query", {"type": "integer", "minimum": 0},
+           "only water bodies whose highest current alert level over their basins is this (0: none)"),
+    _param("region", "query", {"type": "string"}, "only water bodies of this configured region"),
+]
+
 RUN_ID = _param("run_id", "path", {"type": "integer", "minimum": 1, "maximum": MAX_ID}, "forecast run id")
 
 PATHS = {
     "/api/v1/": _get("The API's endpoints", [], {"type": "object"}, csv=False, not_found=False),
-    "/api/v1/water-bodies": _get("Water bodies, their basins and alert frameworks", [],
-                                 _obj(["caution", "water_bodies"], caution=_ref("Caution"),
-                                      water_bodies={"type": "array", "items": _ref("WaterBody")}), not_found=False),
+    "/api/v1/water-bodies": _get("Water bodies, their basins and alert frameworks, a page at a time", LISTING,
+                                 _obj(["caution", "water_bodies", "summary", "paging"], caution=_ref("Caution"),
+                                      water_bodies={"type": "array", "items": _ref("WaterBody")},
+                                      summary=_ref("LevelSummary"), paging=_ref("PageLinks")), not_found=False),
     "/api/v1/water-bodies/{water_body_id}": _get("One water body", [WB], _ref("WaterBody")),
-    "/api/v1/status": _get("Current status of every water body", [],
-                           _obj(["caution", "water_bodies"], caution=_ref("Caution"),
-                                water_bodies={"type": "array", "items": _ref("WaterBodyStatus")}), not_found=False),
+    "/api/v1/status": _get("Current status of the water bodies, a page at a time", LISTING,
+                           _obj(["caution", "water_bodies", "summary", "paging"], caution=_ref("Caution"),
+                                water_bodies={"type": "array", "items": _ref("WaterBodyStatus")},
+                                summary=_ref("LevelSummary"), paging=_ref("PageLinks")), not_found=False),
     "/api/v1/water-bodies/{water_body_id}/status": _get("Current status of one water body", [WB],
                                                         _ref("WaterBodyStatus")),
     "/api/v1/water-bodies/{water_body_id}/forecast": _get("The newest forecast", [WB, BASIN, QUANTITY],

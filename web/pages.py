@@ -14,7 +14,7 @@ import hashlib
 from flask import Blueprint, Response, abort, render_template, request, url_for
 
 from monitor.store import station_health, status
-from web import basin_or_404, get_config, get_engine, now, palette, params, water_body_or_404
+from web import basin_or_404, get_config, get_engine, listing, now, palette, params, water_body_or_404
 from web.charts import chart_urls
 from web.formatting import zone
 from web.schematic import layout
@@ -39,9 +39,11 @@ def _context(wb) -> dict:
 @pages.route("/")
 def index():
     cfg, engine = get_config(), get_engine()
-    overviews = [status.water_body_overview(engine, cfg, wb, now=now()) for wb in cfg.water_bodies]
-    return render_template("status.html", overviews=overviews,
-                           zones={wb.id: zone(wb.timezone) for wb in cfg.water_bodies})
+    params.accept(*listing.PARAMETERS)
+    chosen = listing.listing(cfg, engine)
+    overviews = [status.water_body_overview(engine, cfg, wb, now=now()) for wb in chosen.bodies]
+    return render_template("status.html", overviews=overviews, listing=chosen,
+                           zones={wb.id: zone(wb.timezone) for wb in chosen.bodies})
 
 
 @pages.route("/water-bodies/<water_body_id>")

@@ -73,6 +73,8 @@ class WaterBodyConfig:
     # the monitoring season: first and last (month, day), local dates, both included; may wrap the new
     # year (("11-01", "03-31") reads as November to March); None = all year
     season: tuple[tuple[int, int], tuple[int, int]] | None = None
+    #: a free-text region (a district, a catchment) the status overview and the API filter by; None = none
+    region: str | None = None
 
     def in_season(self, t) -> bool:
         """Whether the local date of ``t`` (an aware datetime) lies in the monitoring season."""

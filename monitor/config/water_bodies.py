@@ -42,10 +42,20 @@ def read_water_body(r: Reader) -> WaterBodyConfig:
         weather_station=r.get("weather_station", str, None),
         basins=tuple(basins), inflows=tuple(inflows), alerts=_alerts(r.sub("alerts"), use), model=_model(r),
         latitude_deg=_bounded(r, "latitude", -90.0, 90.0), longitude_deg=_bounded(r, "longitude", -180.0, 180.0),
-        season=_season(r))
+        season=_season(r), region=_region(r))
     r.finish()
     check_model_spec(wb, r.path, r.prefix)
     return wb
+
+
+def _region(r: Reader) -> str | None:
+    """``region = "North District"``: a free-text region, 1–100 characters (surrounding spaces dropped)."""
+    value = r.get("region", str, None)
+    if value is None:
+        return None
+    if not 1 <= len(value.strip()) <= 100:
+        raise r.error("region", f"expected 1 to 100 characters; got {value[:120]!r}")
+    return value.strip()
 
 
 def _season(r: Reader) -> tuple[tuple[int, int], tuple[int, int]] | None:

@@ -261,6 +261,15 @@ def framework_info(water_body) -> dict:
     }
 
 
+def current_levels(engine: Engine) -> dict[str, int]:
+    """Each water body's highest current alert level over its basins (``alert_status``), in one query;
+    water bodies without a status row are absent (level 0)."""
+    with engine.connect() as conn:
+        rows = conn.execute(select(alert_status.c.water_body_id, func.max(alert_status.c.level))
+                            .group_by(alert_status.c.water_body_id))
+        return {w: int(level or 0) for w, level in rows}
+
+
 def alert_since(engine: Engine, water_body_id: str, basin_id: str, level: int,
                 fallback: dt.datetime | None = None) -> dt.datetime | None:
     """When a basin at ``level`` entered alert: the time of its latest change from no level.
