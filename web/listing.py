@@ -2,7 +2,7 @@
 
 Shared by the status overview page and the API's ``/water-bodies`` and
 ``/status``, so thousands of water bodies are read a page at a time:
-``region`` (one of the configured regions), ``level`` (the water body's
+``region`` (a configured region; another shows no water body), ``level`` (the water body's
 highest current alert level over its basins, 0 = none; one query over
 ``alert_status``, :func:`monitor.store.status.current_levels`), ``page``
 (from 1) and ``per_page`` (1 to ``PER_PAGE_MAX``). The count per level is
@@ -15,7 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from urllib.parse import urlencode
 
-from flask import abort, request
+from flask import request
 
 from monitor.config import Config, WaterBodyConfig
 from monitor.store import status
@@ -23,6 +23,8 @@ from web import params
 
 #: Water bodies per page: default and largest.
 PER_PAGE_DEFAULT, PER_PAGE_MAX = 50, 500
+#: The largest ``level`` accepted (a level no framework has shows no water body).
+LEVEL_MAX = 9
 #: The parameters of a listing.
 PARAMETERS = ("page", "per_page", "level", "region")
 
@@ -84,13 +86,10 @@ def regions(config: Config) -> list[str]:
 
 def listing(config: Config, engine) -> Listing:
     """The water bodies the request's ``region``, ``level``, ``page`` and ``per_page`` choose (400 when
-    one is out of range; a page past the last is empty)."""
+    a number is out of range; a page past the last, an unknown region or level is empty)."""
     names = regions(config)
     region = request.args.get("region")
-    if region is not None and region not in names:
-        known = f"one of: {', '.join(names)}" if names else "absent: no water body has a region"
-        abort(400, description=f"region must be {known}; got {region[:60]!r}")
-    level = params.integer("level", None, minimum=0, maximum=max_level(config))
+    level = params.integer("level", None, minimum=0, maximum=LEVEL_MAX)
     page = params.integer("page", 1, minimum=1, maximum=status.MAX_ID)
     per_page = params.integer("per_page", PER_PAGE_DEFAULT, minimum=1, maximum=PER_PAGE_MAX)
     bodies = [wb for wb in config.water_bodies if region is None or wb.region == region]

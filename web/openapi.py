@@ -14,7 +14,7 @@ from monitor.alerting.caution import CAUTION
 from monitor.forecasting.quantities import QUANTITIES
 from monitor.store.status import MAX_ID
 from web.api import HISTORY_DEFAULT, HISTORY_MAX, RUNS_DEFAULT, RUNS_MAX
-from web.listing import PER_PAGE_DEFAULT, PER_PAGE_MAX
+from web.listing import LEVEL_MAX, PER_PAGE_DEFAULT, PER_PAGE_MAX
 from web.security import MAX_BODY_BYTES
 
 T = {"type": "string", "format": "date-time"}
@@ -159,9 +159,9 @@ LISTING = [
     _param("page", "query", {"type": "integer", "minimum": 1, "maximum": MAX_ID, "default": 1}, "page number"),
     _param("per_page", "query", {"type": "integer", "minimum": 1, "maximum": PER_PAGE_MAX,
                                  "default": PER_PAGE_DEFAULT}, "water bodies per page"),
-    _param("level", "query", {"type": "integer", "minimum": 0},
+    _param("level", "query", {"type": "integer", "minimum": 0, "maximum": LEVEL_MAX},
            "only water bodies whose highest current alert level over their basins is this (0: none)"),
-    _param("region", "query", {"type": "string"}, "only water bodies of this configured region"),
+    _param("region", "query", {"type": "string"}, "only water bodies of this configured region (another: none)"),
 ]
 
 RUN_ID = _param("run_id", "path", {"type": "integer", "minimum": 1, "maximum": MAX_ID}, "forecast run id")

@@ -60,7 +60,7 @@ def test_status_filters_by_level_and_region_and_counts_each_level(many):
     assert many.get("/api/v1/status?region=South%20District&level=2").get_json()["paging"]["total"] == 1
 
 
-@pytest.mark.parametrize("query", ["per_page=0", "per_page=501", "page=0", "level=3", "level=-1", "region=Nowhere"])
+@pytest.mark.parametrize("query", ["per_page=0", "per_page=501", "page=0", "level=10", "level=-1", "page=x"])
 def test_listing_parameters_out_of_range_answer_400(many, query):
     r = many.get(f"/api/v1/water-bodies?{query}")
     assert r.status_code == 400 and r.get_json()["error"]["message"]
@@ -71,4 +71,7 @@ def test_the_overview_page_shows_one_page_counts_and_region_links(many):
     assert "Lake 3" in html and "Lake 4" in html and "Lake 1<" not in html and "Lake 5" not in html
     assert "Page 2 of 4" in html and 'rel="next"' in html and 'rel="prev"' in html
     assert "level 1: 2" in html and "South District" in html
-    assert many.get("/?region=Nowhere").status_code == 400
+    nowhere = many.get("/api/v1/water-bodies?region=Nowhere").get_json()
+    assert nowhere["water_bodies"] == [] and nowhere["summary"]["water_bodies"] == 0
+    assert many.get("/api/v1/status?level=5").get_json()["water_bodies"] == []
+    assert "No water body matches." in many.get("/?level=5").get_data(as_text=True)
