@@ -7,6 +7,7 @@ import datetime as dt
 from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
+from monitor.store.availability import Availability
 from monitor.store.readings import readings_frame
 
 #: What the observed alert level is judged on, in order: phycocyanin (cyanobacteria chlorophyll-a);
@@ -16,9 +17,11 @@ OBSERVED_LEVEL_VARIABLES = ("phycocyanin", "chlorophyll_a", "chlorophyll_fluores
 
 
 def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-                    window: dt.timedelta = dt.timedelta(days=1)) -> dict[str, float | None]:
+                    window: dt.timedelta = dt.timedelta(days=1), *,
+                    available: Availability | None = None) -> dict[str, float | None]:
     """Mean QC-passed reading per basin over the last day [µg/L] of the first variable of
-    ``OBSERVED_LEVEL_VARIABLES`` that the basin is monitored for (None without one that day)."""
+    ``OBSERVED_LEVEL_VARIABLES`` that the basin is monitored for (None without one that day); in a
+    replay (``available``) of the readings available by ``analysis``."""
     out: dict[str, float | None] = {b.id: None for b in wb.basins}
     variable_of: dict[str, str] = {}
     stations: dict[str, str] = {}
@@ -32,7 +35,8 @@ def latest_observed(engine: Engine, config: Config, wb: WaterBodyConfig, analysi
     if not stations:
         return out
     frame = readings_frame(engine, stations=list(stations), variables=sorted(set(variable_of.values())),
-                           start=analysis - window, end=analysis, max_flag=1)
+                           start=analysis - window, end=analysis, max_flag=1,
+                           available=available)
     if not frame.empty:
         frame = frame[frame.variable == frame.station_id.map(lambda s: variable_of[stations[s]])]
         for station, value in frame.groupby("station_id").value.mean().items():
