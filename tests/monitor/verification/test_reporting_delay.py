@@ -46,6 +46,26 @@ def test_a_replay_sees_a_lab_reading_only_after_its_reporting_delay_and_then_re_
     assert "1 readings reported late" in at_day_4.late_note
 
 
+def test_the_availability_rule_is_the_same_in_sql_and_on_a_frame(tmp_path, sqlite_engine):
+    """``Availability`` in a query (``readings_frame(available=)``) keeps exactly the rows its frame filter keeps:
+    a delayed station's reading from its time + delay, the others' from their time."""
+    from monitor.store.availability import Availability
+    from monitor.store.readings import readings_frame
+
+    config = delayed_config(tmp_path)
+    payload = (b"sampled_at,site,variable,value,unit\n"
+               b"2026-07-01 12:00,FW-LAB,chlorophyll_a,12,ug/L\n"
+               b"2026-07-02 12:00,FW-LAB,chlorophyll_a,13,ug/L\n")
+    assert ingest_bytes(sqlite_engine, config, config.feed("lab"), payload, "lab/a.csv", now=NOW).accepted == 2
+    every = readings_frame(sqlite_engine, variables=["chlorophyll_a"])
+    for days in (1, 3, 4, 5):
+        at = dt.datetime(2026, 7, 1, 10, tzinfo=UTC) + dt.timedelta(days=days)  # sampled 10:00 UTC
+        rule = Availability(at, {"FW-LAB": 3.0})
+        in_sql = readings_frame(sqlite_engine, variables=["chlorophyll_a"], available=rule)
+        assert in_sql.value.tolist() == rule.filter(every).value.tolist() == [12.0, 13.0][:max(0, days - 2)]
+        assert len(readings_frame(sqlite_engine, variables=["chlorophyll_a"], available=Availability(at))) == 2
+
+
 # ---------------------------------------------------------------- a whole replay
 
 
