@@ -43,12 +43,13 @@ from monitor.forecasting.baselines import baseline_members
 from monitor.forecasting.blend_setup import read_blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import OBSERVED_BY, ObservedHistory, observed_history, seasonal_mean
-from monitor.forecasting.late import available_in_replay, delayed_restart, late_restart
+from monitor.forecasting.late import delayed_restart, late_restart, replay_availability
 from monitor.forecasting.observations import OBSERVED_VARIABLES, to_observations
 from monitor.forecasting.observed_level import latest_observed
 from monitor.forecasting.publish import publish
 from monitor.forecasting.quantities import QUANTITIES, quantity_series
 from monitor.store import runs as store
+from monitor.store.availability import Availability
 from monitor.store.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import from_epoch_days, to_epoch_days
 
@@ -94,11 +95,12 @@ class CycleInputs:
 
 
 def station_readings(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
-                     end: dt.datetime) -> pd.DataFrame:
-    """Stored readings of every station of ``wb`` (basins, gauges, weather) in [start, end]."""
+                     end: dt.datetime, *, available: Availability | None = None) -> pd.DataFrame:
+    """Stored readings of every station of ``wb`` (basins, gauges, weather) in [start, end]
+    (in a replay, ``available``: only those available by then)."""
     stations = sorted({s.id for s in config.stations_of(wb.id)} | set(driver_stations(config, wb)))
     max_flag = 3 if config.filter.assimilate_suspect else 1
-    return readings_frame(engine, stations=stations, start=start, end=end, max_flag=max_flag)
+    return readings_frame(engine, stations=stations, start=start, end=end, max_flag=max_flag, available=available)
 
 
 def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig, after: dt.datetime) -> pd.DataFrame:
@@ -111,27 +113,29 @@ def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
 
 
 def assimilable(engine: Engine, config: Config, wb: WaterBodyConfig, frame: pd.DataFrame, after: dt.datetime,
-                until: dt.datetime, *, replay: bool = False) -> pd.DataFrame:
+                until: dt.datetime, *, available: Availability | None = None) -> pd.DataFrame:
     """The plain readings of ``frame`` and the censored ones of the store that the filter may use in
-    (after, until], with columns ``censored`` and ``detection_limit``; in a replay only those
-    available by ``until`` (time plus the station's reporting delay)."""
+    (after, until], with columns ``censored`` and ``detection_limit``; in a replay (``available``) only
+    those available by then (time plus the station's reporting delay)."""
     plain = observations_frame(frame, config, wb, after).assign(censored=False, detection_limit=np.nan)
-    parts = [f for f in (plain, censored_frame(engine, config, wb, after, until)) if not f.empty]
-    both = pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
-    return available_in_replay(both, config, wb, until) if replay else both
+    if available is not None:
+        plain = available.filter(plain)
+    parts = [f for f in (plain, censored_frame(engine, config, wb, after, until, available=available)) if not f.empty]
+    return pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
 
 
 def censored_frame(engine: Engine, config: Config, wb: WaterBodyConfig, after: dt.datetime,
-                   until: dt.datetime) -> pd.DataFrame:
+                   until: dt.datetime, *, available: Availability | None = None) -> pd.DataFrame:
     """The censored (below-detection) readings of ``wb``'s basins in (after, until], with their limits."""
     stations = [s.id for s in config.stations_of(wb.id) if s.basin is not None]
     frame = readings_frame(engine, stations=stations, variables=OBSERVED_VARIABLES, start=after, end=until,
-                           max_flag=0, include_censored=True)
+                           max_flag=0, include_censored=True, available=available)
     return frame[frame.censored & (frame.time_utc > after)]
 
 
 def first_guess(engine: Engine | None, config: Config, wb: WaterBodyConfig, spec: ModelSpec,
-                at: dt.datetime, *, frame: pd.DataFrame | None = None) -> np.ndarray:
+                at: dt.datetime, *, frame: pd.DataFrame | None = None,
+                available: Availability | None = None) -> np.ndarray:
     """A first-guess state from the most recent samples before ``at`` (defaults where none).
 
     Each pool takes the median of its samples; detrital P is what a total-P
@@ -144,7 +148,8 @@ def first_guess(engine: Engine | None, config: Config, wb: WaterBodyConfig, spec
     B, G = spec.n_basins, spec.n_groups
     cyano = spec.cyanobacteria_index
     if frame is None:
-        frame = station_readings(engine, config, wb, at - dt.timedelta(days=14), at + dt.timedelta(days=2))
+        frame = station_readings(engine, config, wb, at - dt.timedelta(days=14), at + dt.timedelta(days=2),
+                                 available=available)
     frame = observations_frame(frame, config, wb, at - dt.timedelta(days=14))
     basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations_of(wb.id) if s.basin}
     N = np.full(B, DEFAULT_FIRST_GUESS.nitrogen_ugL)
@@ -210,9 +215,11 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
 
     ``replay``: readings count as available by their time stamps plus their
     station's ``reporting_delay_days`` (a replay of a stored history, where
-    arrival times mean nothing); those that became available since the
-    newest checkpoint are re-analysed like late readings.
+    arrival times mean nothing) for every read here — observations, drivers
+    and their substitutes, the observed history; those that became available
+    since the newest checkpoint are re-analysed like late readings.
     """
+    available = replay_availability(config, analysis) if replay else None
     spec = model_spec(wb)
     cfg = filter_config(config, wb)
     found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
@@ -232,22 +239,22 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
     else:
         start = season_start if season_start is not None and analysis - season_start <= gap \
             else analysis - dt.timedelta(days=1)
-        blob, guess = None, first_guess(engine, config, wb, spec, start)
+        blob, guess = None, first_guess(engine, config, wb, spec, start, available=available)
     # One query for the cycle: from a few days before the checkpoint (to bridge
     # driver gaps) or two weeks before the analysis (for the outlook), whichever is earlier.
     frame = station_readings(engine, config, wb, min(start - dt.timedelta(days=3), analysis - dt.timedelta(days=14)),
-                             analysis)
+                             analysis, available=available)
     series = StationSeries(frame)
     notes: list[str] = []
     drivers = observed_drivers(series, config, wb, start, analysis, notes)
     horizon = wb.alerts.horizon_days
-    history = observed_history(engine, config, wb, analysis)
+    history = observed_history(engine, config, wb, analysis, available=available)
     scenarios = outlook_drivers(engine, config, wb, series, analysis, horizon, history=history, notes=notes)
     return CycleInputs(
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=blob, start_d=float(to_epoch_days(start)), initial_state=guess,
         seed=config.filter.seed + sum(map(ord, wb.id)),
-        observations=to_observations(assimilable(engine, config, wb, frame, start, analysis, replay=replay),
+        observations=to_observations(assimilable(engine, config, wb, frame, start, analysis, available=available),
                                      config, wb),
         drivers=drivers, forecast_drivers=scenarios,
         horizon_days=horizon, thresholds_ugL=tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels),
@@ -414,7 +421,7 @@ def member_rows(outputs: CycleOutputs):
 
 
 def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.datetime | None = None,
-           guard: Callable[[Connection], None] | None = None) -> dict:
+           guard: Callable[[Connection], None] | None = None, available: Availability | None = None) -> dict:
     """Store a cycle's checkpoint and forecast and evaluate the alert rules, in one transaction; returns a summary.
 
     The checkpoint, the forecast run with its values and members, the alert
@@ -427,11 +434,12 @@ def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.dat
     the transaction and raises to refuse it (the scheduler's lease).
 
     After a cold start the alert rules wait ``spin_up_cycles`` cycles, while
-    the ensemble's first-guess spread settles on the readings.
+    the ensemble's first-guess spread settles on the readings. ``available``
+    (a replay): the observed alert level from the readings available by then.
     """
     wb = config.water_body(outputs.water_body_id)
     analysis = from_epoch_days(outputs.analysis_d)
-    observed = latest_observed(engine, config, wb, analysis) if outputs.forecasts else {}
+    observed = latest_observed(engine, config, wb, analysis, available=available) if outputs.forecasts else {}
     with engine.begin() as conn:
         if guard is not None:
             guard(conn)

@@ -24,6 +24,7 @@ import pandas as pd
 from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
+from monitor.store.availability import Availability
 from monitor.store.daily import daily_means
 from monitor.timeutil import to_epoch_days
 
@@ -87,8 +88,10 @@ def series_by_basin(frame: pd.DataFrame, basin_of: dict[str, str]) -> ObservedHi
     return ObservedHistory(out)
 
 
-def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> ObservedHistory:
-    """The recent and same-season-earlier daily history of ``wb``'s basins up to ``analysis``."""
+def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                     *, available: Availability | None = None) -> ObservedHistory:
+    """The recent and same-season-earlier daily history of ``wb``'s basins up to ``analysis`` (in a
+    replay, ``available``: of the readings available by then)."""
     basin_of = {s.id: s.basin for s in config.stations_of(wb.id) if s.basin}
     if not basin_of:
         return ObservedHistory()
@@ -99,7 +102,8 @@ def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analys
         centre = analysis - dt.timedelta(days=round(365.25 * years))
         windows.append((centre - CLIMATOLOGY_MARGIN_DAYS * day,
                         min(centre + (wb.alerts.horizon_days + CLIMATOLOGY_MARGIN_DAYS) * day, windows[0][0])))
-    frames = [daily_means(engine, stations=list(basin_of), variables=variables, anchor=analysis, start=a, end=b)
+    frames = [daily_means(engine, stations=list(basin_of), variables=variables, anchor=analysis, start=a, end=b,
+                         available=available)
               for a, b in windows if b > a]
     frame = pd.concat([f for f in frames if len(f)], ignore_index=True) if any(len(f) for f in frames) \
         else frames[0]

@@ -3,7 +3,7 @@
 Live, a reading is late when it was received after the checkpoint that
 covered its time (:func:`late_restart`). A replay has no arrival times: a
 station's ``reporting_delay_days`` stands for them, so a reading counts as
-available at its time plus that delay (:func:`available_in_replay`), and
+available at its time plus that delay (:func:`replay_availability`), and
 one that became available since the newest checkpoint is re-analysed the
 same way (:func:`delayed_restart`).
 """
@@ -18,6 +18,7 @@ from sqlalchemy.engine import Engine
 from monitor.config import Config, WaterBodyConfig
 from monitor.forecasting.observations import OBSERVED_VARIABLES
 from monitor.store import runs as store
+from monitor.store.availability import Availability
 from monitor.store.late import checkpoint_created, late_readings
 from monitor.store.readings import readings_frame
 from monitor.timeutil import EPOCH
@@ -59,15 +60,10 @@ def _delays(config: Config, wb: WaterBodyConfig) -> dict[str, float]:
             if s.basin and s.reporting_delay_days > 0}
 
 
-def available_in_replay(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
-                        analysis: dt.datetime) -> pd.DataFrame:
-    """The rows of ``frame`` (readings of ``wb``) available at ``analysis`` in a replay: time plus the
-    station's reporting delay at or before it."""
-    delays = _delays(config, wb)
-    if frame.empty or not delays:
-        return frame
-    delay = pd.to_timedelta(frame.station_id.map(delays).fillna(0.0).to_numpy(dtype=float), unit="D")
-    return frame[(frame.time_utc + delay) <= pd.Timestamp(analysis)]
+def replay_availability(config: Config, analysis: dt.datetime) -> Availability:
+    """What a replayed cycle at ``analysis`` may see: each reading from its time plus its station's
+    ``reporting_delay_days`` (every station that declares one)."""
+    return Availability(analysis, {s.id: s.reporting_delay_days for s in config.stations if s.reporting_delay_days > 0})
 
 
 def delayed_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,

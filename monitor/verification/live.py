@@ -21,6 +21,7 @@ from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
 from monitor.store import schema
+from monitor.store.availability import Availability
 from monitor.verification import summary
 from monitor.verification.pairs import water_body_pairs
 from monitor.verification.records import RECORD_COLUMNS, pair_records
@@ -33,11 +34,13 @@ def levels_of(wb: WaterBodyConfig) -> dict[str, tuple[float, ...]]:
     return {wb.id: tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels)}
 
 
-def score_recent(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> int:
+def score_recent(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                 *, available: Availability | None = None) -> int:
     """Score ``wb``'s runs issued in the last horizon + ``RESCORE_DAYS`` days against the readings up to
-    ``analysis``; returns the number of records written."""
+    ``analysis`` (in a replay, ``available``: those available by then); returns the number of records written."""
     first = analysis - dt.timedelta(days=wb.alerts.horizon_days + RESCORE_DAYS)
-    pairs = water_body_pairs(engine, engine, config, wb, first=first, last=analysis, until=analysis)
+    pairs = water_body_pairs(engine, engine, config, wb, first=first, last=analysis, until=analysis,
+                             available=available)
     records = pair_records(pairs, levels_of(wb))
     t = schema.forecast_scores
     runs = schema.forecast_runs
