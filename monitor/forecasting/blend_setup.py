@@ -5,8 +5,8 @@ Per chlorophyll quantity and lead day, from the score records
 before the analysis, pooled over the water body's basins: the cases are the
 runs in which every component in use was verified on the same day (a
 component verified in fewer than half of the cases is left out of the fit).
-On those cases the component weights, the mean log error and the spread
-factor are fitted together by minimum-CRPS estimation
+On those cases the component weights and the spread factor are fitted
+together by minimum-CRPS estimation
 (:func:`assimilation.blend.fit_combination`; EMOS, Gneiting et al. 2005),
 then shrunk towards the priors with the weight of ``PRIOR_DAYS`` cases
 (:func:`assimilation.blend.shrink_settings`).
@@ -15,7 +15,7 @@ With fewer than ``MIN_CASES`` cases the documented priors apply: the process
 model and the two statistical forecasts in the proportions of
 ``PRIOR_WEIGHTS`` (Bloomline's choice: the process model alone was measured
 to lose to persistence, the statistical forecasts to be close to it; the
-record takes over within weeks), no bias correction, no spread change. Only
+record takes over within weeks) and no spread change. Only
 records of days that ended at or before the analysis are read, so a hindcast
 stays free of look-ahead.
 """

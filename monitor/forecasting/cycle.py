@@ -325,10 +325,10 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
 
 def blend_diagnostics(settings: dict, published: bool) -> dict:
     """The blend's settings of this run, for the run's diagnostics: per chlorophyll quantity and
-    lead day the component weights, the mean log error removed and the spread factor."""
+    lead day the component weights and the spread factor."""
     return {"published": published,
             "by_quantity": {q: [{"lead_days": k, "weights": {c: round(w, 4) for c, w in sorted(s.weights.items())},
-                                 "bias_ln": round(s.bias_ln, 4), "spread_factor": round(s.spread_factor, 4)}
+                                 "spread_factor": round(s.spread_factor, 4)}
                                 for k, s in enumerate(leads, start=1)]
                             for q, leads in settings.items()}}
 
