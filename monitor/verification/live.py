@@ -71,12 +71,16 @@ def _rows(records: pd.DataFrame) -> list[dict]:
     return rows
 
 
-def stored_records(engine: Engine, water_body_id: str, since: dt.datetime | None = None) -> pd.DataFrame:
-    """The stored score records of a water body (valid on or after ``since``), as ``RECORD_COLUMNS``."""
+def stored_records(engine: Engine, water_body_id: str, since: dt.datetime | None = None,
+                   forecasters: tuple[str, ...] | None = None) -> pd.DataFrame:
+    """The stored score records of a water body (valid on or after ``since``; of ``forecasters`` only
+    when given), as ``RECORD_COLUMNS``."""
     t = schema.forecast_scores
     q = select(t).where(t.c.water_body_id == water_body_id)
     if since is not None:
         q = q.where(t.c.valid_utc >= since)
+    if forecasters is not None:
+        q = q.where(t.c.forecaster.in_(forecasters))
     with engine.connect() as conn:
         frame = pd.DataFrame(conn.execute(q).mappings().all())
     if frame.empty:

@@ -123,7 +123,7 @@ def test_an_overconfident_forecast_calibrated_on_its_record_covers_new_days_as_i
     observed = np.exp(signal + rng.normal(0, 0.4, days))          # truth: log error sd 0.4
     members = np.exp(signal[:, None] + rng.normal(0, 0.1, (days, m)))   # far too narrow
     logm = np.log(members)
-    record = pd.DataFrame({"run_id": np.arange(300), "basin_id": "main", "forecaster": "process_model",
+    record = pd.DataFrame({"run_id": np.arange(300), "basin_id": "main", "lead_days": 1, "forecaster": "process_model",
                            "members": m, "observed": observed[:300], "log_mean": logm[:300].mean(axis=1),
                            "log_sd": logm[:300].std(axis=1, ddof=1), "crps": 1.0})
     s = lead_settings(record)
@@ -137,3 +137,24 @@ def test_an_overconfident_forecast_calibrated_on_its_record_covers_new_days_as_i
     assert before < 0.4 and 0.84 <= after <= 0.96
     assert np.mean(scores.crps_ensemble(cal.T, observed[300:])) < np.mean(scores.crps_ensemble(members[300:].T,
                                                                                                  observed[300:]))
+
+
+def test_the_case_table_holds_what_a_pandas_pivot_of_the_records_holds():
+    from monitor.forecasting.blend_setup import COMPONENTS, case_table
+
+    rng = np.random.default_rng(9)
+    rows = [dict(run_id=r, basin_id=b, lead_days=k, forecaster=f, log_mean=rng.normal(), log_sd=rng.uniform(.1, 1),
+                 observed=float(np.exp(r % 7 + k)))
+            for r in range(40) for b in ("east", "west") for k in (1, 2) for f in (*COMPONENTS, "persistence")
+            if rng.uniform() > 0.2]
+    records = pd.DataFrame(rows)
+    table = case_table(records)
+    for k, cases in table.items():
+        sub = records[(records.lead_days == k) & records.forecaster.isin(COMPONENTS)]
+        ref = sub.pivot_table(index=["run_id", "basin_id"], columns="forecaster", values="log_mean", sort=False)
+        got = pd.DataFrame(cases.mu, columns=COMPONENTS)
+        # same set of (run, basin) rows and the same value in every cell (pandas pivot_table)
+        assert len(got) == len(ref)
+        np.testing.assert_allclose(np.sort(got[list(ref.columns)].fillna(-99).to_numpy(), axis=0),
+                                   np.sort(ref.fillna(-99).to_numpy(), axis=0))
+        assert np.all(np.isfinite(cases.y))
