@@ -11,14 +11,19 @@ For each lead day the blend's predictive distribution is built in three steps:
    components on average; and because the CRPS is an integral of quantile
    scores that are convex in the quantile, the average's CRPS is never larger
    than the weighted mean of the components' CRPS (Lichtendahl et al. 2013).
-2. **Calibration** in log space, after non-homogeneous Gaussian regression
-   (EMOS; Gneiting, Raftery, Westveld & Goldman 2005, Mon. Wea. Rev.
-   133:1098): a mean log error to remove and a factor on the spread about the
-   mean. The weights, the bias and the factor are fitted together by
-   minimising the mean CRPS of the normal distribution N(Σ w_c μ_c − a,
-   (s·Σ w_c σ_c)²) over the record (:func:`fit_combination`), μ_c and σ_c the
-   components' member mean and sd of log chlorophyll-a — the quantile average
-   of normals being exactly that normal.
+2. **Calibration** of the spread in log space, after non-homogeneous
+   Gaussian regression (EMOS; Gneiting, Raftery, Westveld & Goldman 2005,
+   Mon. Wea. Rev. 133:1098): a factor on the spread about the mean. The
+   weights and the factor are fitted together by minimising the mean CRPS of
+   the normal distribution N(Σ w_c μ_c, (s·Σ w_c σ_c)²) over the record
+   (:func:`fit_combination`), μ_c and σ_c the components' member mean and sd
+   of log chlorophyll-a — the quantile average of normals being exactly that
+   normal. EMOS also removes a mean error learnt on the record; Bloomline
+   does not: on both invented scenarios a mean log error learnt over the
+   previous weeks did not carry over to the following days (blooms, collapses
+   and storms change its sign), and removing it made the CRPS worse at every
+   lead (measured with ``tests/benchmarks/bench_hindcast.py``). The weights
+   correct a persistently biased component instead.
 3. **Ensemble copula coupling** (ECC; Schefzik, Thorarinsdottir & Gneiting
    2013, Stat. Sci. 28:616): the calibrated members of each lead are put in
    the rank order of the process-model members at that lead, so that each
@@ -40,8 +45,6 @@ from assimilation.scores import LOG_FLOOR_UGL
 
 #: Bounds of the spread factor [-] (a record of a few weeks cannot justify more).
 SPREAD_FACTOR_BOUNDS = (0.5, 4.0)
-#: Bound on the fitted mean log error [log units] (a factor of e either way).
-BIAS_BOUND_LN = 1.0
 #: Bound on the weight logits (weights down to about e^-16 of the largest; Bloomline's choice).
 LOGIT_BOUND = 8.0
 _SQRT_PI = np.sqrt(np.pi)
@@ -49,11 +52,10 @@ _SQRT_PI = np.sqrt(np.pi)
 
 @dataclass(frozen=True)
 class LeadSettings:
-    """The blend of one lead day: component weights (sum to 1), the mean log error to remove
-    [log units] and the factor on the spread in log space [-]."""
+    """The blend of one lead day: component weights (sum to 1) and the factor on the spread in
+    log space [-]."""
 
     weights: dict[str, float]
-    bias_ln: float = 0.0
     spread_factor: float = 1.0
 
 
@@ -83,12 +85,12 @@ def quantile_average(log_members: dict[str, np.ndarray], weights: dict[str, floa
     return out
 
 
-def calibrate(z: np.ndarray, bias_ln: float, spread_factor: float) -> np.ndarray:
-    """Members ``z`` (log) shifted by −``bias_ln`` and spread about their mean by ``spread_factor``."""
+def calibrate(z: np.ndarray, spread_factor: float) -> np.ndarray:
+    """Members ``z`` (log) spread about their mean by ``spread_factor`` (within ``SPREAD_FACTOR_BOUNDS``)."""
     lo, hi = SPREAD_FACTOR_BOUNDS
     s = float(np.clip(spread_factor, lo, hi))
     mean = z.mean()
-    return mean - bias_ln + s * (z - mean)
+    return mean + s * (z - mean)
 
 
 def ecc_order(values: np.ndarray, template: np.ndarray) -> np.ndarray:
@@ -125,7 +127,7 @@ def blend(components: dict[str, np.ndarray], process: str, settings: list[LeadSe
         weights = {c: w for c, w in s.weights.items() if c in logs and w > 0} or {process: 1.0}
         z = quantile_average(logs, weights, M)
         raw[k] = np.exp(ecc_order(z, logs[process]))
-        out[k] = np.exp(ecc_order(calibrate(z, s.bias_ln, s.spread_factor), logs[process]))
+        out[k] = np.exp(ecc_order(calibrate(z, s.spread_factor), logs[process]))
     return out, raw
 
 
@@ -141,68 +143,67 @@ def _pdf(z):
 
 
 def _unpack(theta: np.ndarray, c: int):
-    logits, a, log_s = theta[:c], theta[c], theta[c + 1]
+    logits, log_s = theta[:c], theta[c]
     w = np.exp(logits - logits.max())
-    return w / w.sum(), a, np.exp(log_s)
+    return w / w.sum(), np.exp(log_s)
 
 
 def combination_objective(theta: np.ndarray, mu: np.ndarray, sd: np.ndarray, y: np.ndarray) -> tuple[float, np.ndarray]:
-    """Mean CRPS [log units] of N(Σ w μ − a, (s Σ w σ)²) over the cases, and its gradient in ``theta``.
+    """Mean CRPS [log units] of N(Σ w μ, (s Σ w σ)²) over the cases, and its gradient in ``theta``.
 
-    ``theta`` = (weight logits (C,), a, ln s); ``mu``, ``sd`` (N, C) the
+    ``theta`` = (weight logits (C,), ln s); ``mu``, ``sd`` (N, C) the
     components' log mean and sd; ``y`` (N,) the observed log values. The
     gradient uses ∂CRPS/∂μ = −erf(z/√2) and ∂CRPS/∂σ = 2φ(z) − 1/√π
     (z = (y − μ)/σ), from eq. 5 of Gneiting et al. (2005).
     """
     c = mu.shape[1]
-    w, a, s = _unpack(theta, c)
+    w, s = _unpack(theta, c)
     mbar, sbar = mu @ w, sd @ w
-    m, sig = mbar - a, s * sbar
+    m, sig = mbar, s * sbar
     z = (y - m) / sig
     erf = special.erf(z / np.sqrt(2.0))
     crps = sig * (z * erf + 2.0 * _pdf(z) - 1.0 / _SQRT_PI)
     d_m, d_sig = -erf, 2.0 * _pdf(z) - 1.0 / _SQRT_PI
     n = y.size
-    grad = np.empty(c + 2)
+    grad = np.empty(c + 1)
     # softmax: ∂(Σ w x)/∂θ_k = w_k (x_k − Σ w x)
     grad[:c] = w * ((d_m[:, None] * (mu - mbar[:, None])).sum(axis=0)
                     + s * (d_sig[:, None] * (sd - sbar[:, None])).sum(axis=0)) / n
-    grad[c] = -d_m.sum() / n
-    grad[c + 1] = (d_sig * sig).sum() / n
+    grad[c] = (d_sig * sig).sum() / n
     return float(crps.mean()), grad
 
 
-def fit_combination(mu: np.ndarray, sd: np.ndarray, y: np.ndarray, prior: np.ndarray) -> tuple[np.ndarray, float, float]:
-    """(weights (C,), mean log error a, spread factor s) minimising the mean CRPS of the calibrated
-    quantile average over the cases (minimum-CRPS estimation, Gneiting et al. 2005).
+def fit_combination(mu: np.ndarray, sd: np.ndarray, y: np.ndarray, prior: np.ndarray) -> tuple[np.ndarray, float]:
+    """(weights (C,), spread factor s) minimising the mean CRPS of the calibrated quantile average
+    over the cases (minimum-CRPS estimation, Gneiting et al. 2005).
 
     ``mu``, ``sd`` (N, C) are the components' member mean and sd of log
     chlorophyll-a, ``y`` (N,) the observed log values; the search starts at
-    the ``prior`` weights, no bias and no spread change (L-BFGS-B, bounded).
+    the ``prior`` weights and no spread change (L-BFGS-B, bounded).
     """
     mu, sd, y = (np.asarray(a, dtype=float) for a in (mu, sd, y))
     c = mu.shape[1]
     prior = np.asarray(prior, dtype=float)
-    start = np.concatenate([np.log(np.maximum(prior / prior.sum(), 1e-6)), [0.0, 0.0]])
+    start = np.concatenate([np.log(np.maximum(prior / prior.sum(), 1e-6)), [0.0]])
     lo, hi = SPREAD_FACTOR_BOUNDS
-    bounds = [(-LOGIT_BOUND, LOGIT_BOUND)] * c + [(-BIAS_BOUND_LN, BIAS_BOUND_LN), (np.log(lo), np.log(hi))]
+    bounds = [(-LOGIT_BOUND, LOGIT_BOUND)] * c + [(np.log(lo), np.log(hi))]
     res = optimize.minimize(combination_objective, start, args=(mu, np.maximum(sd, 1e-6), y), jac=True,
                             method="L-BFGS-B", bounds=bounds)
-    w, a, s = _unpack(res.x, c)
-    return w, float(a), float(s)
+    w, s = _unpack(res.x, c)
+    return w, float(s)
 
 
-def shrink_settings(names: list[str], fitted: tuple[np.ndarray, float, float], prior: dict[str, float],
+def shrink_settings(names: list[str], fitted: tuple[np.ndarray, float], prior: dict[str, float],
                     n: int, prior_cases: int) -> LeadSettings:
-    """Fitted settings shrunk towards the prior (``prior`` weights, no bias, no spread change):
-    with ``n`` cases the fit counts n/(n + ``prior_cases``); weights are mixed linearly, the
-    bias scaled and the spread factor mixed in its logarithm. Weights sum to one."""
-    w_fit, a, s = fitted
+    """Fitted settings shrunk towards the prior (``prior`` weights, no spread change): with ``n``
+    cases the fit counts n/(n + ``prior_cases``); weights are mixed linearly and the spread factor
+    in its logarithm. Weights sum to one."""
+    w_fit, s = fitted
     alpha = n / (n + prior_cases)
     keys = sorted(set(names) | set(prior))
     p_total = sum(prior.values())
     fit = dict(zip(names, w_fit))
     w = {k: alpha * fit.get(k, 0.0) + (1 - alpha) * prior.get(k, 0.0) / p_total for k in keys}
     total = sum(w.values())
-    return LeadSettings({k: v / total for k, v in w.items() if v > 0}, bias_ln=alpha * a,
+    return LeadSettings({k: v / total for k, v in w.items() if v > 0},
                         spread_factor=float(np.exp(alpha * np.log(s))))

@@ -110,12 +110,12 @@ def verification_page(water_body_id: str):
 
 
 def _blend_rows(wb) -> dict | None:
-    """The newest run's blend as table rows: quantity, lead, one weight per component, bias, spread."""
+    """The newest run's blend as table rows: quantity, lead, one weight per component, spread factor."""
     blend = latest_blend(get_engine(), wb.id)
     if blend is None:
         return None
     components = sorted({c for leads in blend["by_quantity"].values() for e in leads for c in e["weights"]})
-    rows = [dict(quantity=q, lead_days=e["lead_days"], bias_ln=e["bias_ln"], spread_factor=e["spread_factor"],
+    rows = [dict(quantity=q, lead_days=e["lead_days"], spread_factor=e["spread_factor"],
                  **{c: e["weights"].get(c, 0.0) for c in components})
             for q, leads in sorted(blend["by_quantity"].items()) for e in leads]
     return {"analysis_utc": blend["analysis_utc"], "published": blend.get("published", True),

@@ -30,6 +30,7 @@ from monitor.alerting import notify, subscriptions
 from monitor.alerting.transports import WebhookTransport
 from monitor.config import Config
 from monitor.forecasting import batch_record, cycle, many
+from monitor.forecasting.late import replay_availability
 from monitor.forecasting.many import compute_guarded
 from monitor.ingest.batches import BatchResult
 from monitor.ingest.feeds import start_mqtt_feeds
@@ -37,6 +38,7 @@ from monitor.ingest.feeds.csv_folder import ingest_all, poll_folder
 from monitor.ingest.feeds.http_pull import PullState, load_states, pull_feed, save_state
 from monitor.store import jobs
 from monitor.store import runs as store
+from monitor.store.availability import Availability
 from monitor.store.db import open_store
 from monitor.store.lease import LeaseLost
 from monitor.timeutil import now_utc
@@ -244,7 +246,8 @@ class Service:
         """Record a batch in one transaction; a water body whose writes fail is reported alone. If the
         batch itself cannot be written, each is recorded on its own."""
         try:
-            results = batch_record.record_many(self.engine, self.config, outputs, now=self.clock(), guard=self.guard)
+            results = batch_record.record_many(self.engine, self.config, outputs, now=self.clock(), guard=self.guard,
+                                               replay=self.replay)
         except LeaseLost:
             raise
         except Exception:  # noqa: BLE001 - e.g. the observed-level query: fall back to one by one
@@ -259,13 +262,19 @@ class Service:
         A failure is logged and leaves the cycle's result alone: verification never stops a forecast.
         """
         try:
-            score_recent(self.engine, self.config, self.config.water_body(water_body_id), analysis)
+            score_recent(self.engine, self.config, self.config.water_body(water_body_id), analysis,
+                         available=self._available(analysis))
         except Exception:  # noqa: BLE001
             log.exception("verification of %s at %s failed", water_body_id, analysis.isoformat())
 
+    def _available(self, analysis: dt.datetime) -> Availability | None:
+        """In a replay, the readings a cycle at ``analysis`` may see (their stations' reporting delays)."""
+        return replay_availability(self.config, analysis) if self.replay else None
+
     def _record(self, out: cycle.CycleOutputs, analysis: dt.datetime) -> dict:
         try:
-            return cycle.record(self.engine, self.config, out, now=self.clock(), guard=self.guard)
+            return cycle.record(self.engine, self.config, out, now=self.clock(), guard=self.guard,
+                                available=self._available(analysis))
         except LeaseLost:
             raise  # this process may no longer act: not a water body's failure
         except Exception as exc:  # noqa: BLE001

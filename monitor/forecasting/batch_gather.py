@@ -16,7 +16,12 @@ Dask worker beside ``compute``.
 Where a cycle starts (cold-start gap, late readings) is decided for each
 water body by :func:`monitor.forecasting.cycle.cycle_start`; a live
 re-analysis for late readings (rare: a normal day finds no candidate) and a
-replay's reporting delays are looked up per water body.
+replay's re-analysis for readings reported late are looked up per water
+body. In a replay every set-based read of readings goes through the same
+:class:`~monitor.store.availability.Availability` as ``cycle.fetch``
+(:func:`monitor.forecasting.late.replay_availability`): it depends on the
+station and time only, so the union's rows split per water body are those
+each water body's own query keeps.
 """
 
 from __future__ import annotations
@@ -33,8 +38,10 @@ from monitor.config import Config, WaterBodyConfig
 from monitor.forecasting import cycle
 from monitor.forecasting.blend_setup import RECORD_DAYS
 from monitor.forecasting.history import HISTORY_VARIABLES, basin_stations, history_windows
+from monitor.forecasting.late import replay_availability
 from monitor.forecasting.observations import OBSERVED_VARIABLES
 from monitor.store import schema
+from monitor.store.availability import Availability
 from monitor.store.daily import daily_means
 from monitor.store.late import stations_with_late_readings
 from monitor.store.readings import readings_frame
@@ -92,6 +99,7 @@ def fetch_many(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig]
 def fetch(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig], analysis: dt.datetime, *,
           season_start: dt.datetime | None = None, replay: bool = False) -> dict[str, RawInputs]:
     """What ``cycle.fetch`` reads for each of ``bodies`` at ``analysis`` (aware UTC), in one query per kind."""
+    available = replay_availability(config, analysis) if replay else None
     found = latest_checkpoints(engine, [wb.id for wb in bodies], analysis - dt.timedelta(seconds=1))
     candidates = set() if replay else _late_candidates(engine, config, bodies, found)
     starts: dict[str, tuple[dt.datetime, bytes | None, str]] = {}
@@ -103,17 +111,18 @@ def fetch(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig], ana
                                           replay=replay, restart=restart)
     stations = {wb.id: cycle.cycle_stations(config, wb) for wb in bodies}
     readings = _split(engine, stations, {w: cycle.reading_window(s[0], analysis) for w, s in starts.items()},
-                      max_flag=cycle.assimilated_flag(config))
+                      max_flag=cycle.assimilated_flag(config), available=available)
     cold = [wb.id for wb in bodies if starts[wb.id][1] is None]
     guess = _split(engine, {w: stations[w] for w in cold},
-                   {w: cycle.first_guess_window(starts[w][0]) for w in cold}, max_flag=cycle.assimilated_flag(config))
+                   {w: cycle.first_guess_window(starts[w][0]) for w in cold}, max_flag=cycle.assimilated_flag(config),
+                   available=available)
     censored = _split(engine, {wb.id: [s.id for s in config.stations_of(wb.id) if s.basin is not None]
                                for wb in bodies},
                       {w: (s[0], analysis) for w, s in starts.items()}, open_start=True,
-                      variables=OBSERVED_VARIABLES, max_flag=0, include_censored=True)
+                      variables=OBSERVED_VARIABLES, max_flag=0, include_censored=True, available=available)
     weather = latest_weather_forecasts(engine, sorted({wb.weather_station for wb in bodies if wb.weather_station}),
                                        analysis)
-    history = _history_daily(engine, config, bodies, analysis)
+    history = _history_daily(engine, config, bodies, analysis, available)
     records = _records(engine, [wb.id for wb in bodies], analysis - dt.timedelta(days=RECORD_DAYS))
     return {wb.id: RawInputs(
         water_body_id=wb.id, analysis=analysis, start=starts[wb.id][0], checkpoint=starts[wb.id][1],
@@ -122,7 +131,7 @@ def fetch(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig], ana
         weather=weather.get(wb.weather_station, _EMPTY_WEATHER) if wb.weather_station else pd.DataFrame(),
         history_daily=history[wb.id],
         records=records[wb.id] if wb.id in records else pd.DataFrame(columns=RECORD_COLUMNS),
-        replay=replay) for wb in bodies}
+        available=available) for wb in bodies}
 
 
 def _keep(engine, config, wb, analysis, found):
@@ -213,10 +222,10 @@ def latest_weather_forecasts(engine: Engine, station_ids: Sequence[str], issued_
             .reset_index(drop=True) for s, sub in frame.groupby("station_id", sort=False)}
 
 
-def _history_daily(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig], analysis: dt.datetime
-                   ) -> dict[str, list[pd.DataFrame]]:
-    """Per water body, what :func:`monitor.forecasting.history.history_daily` returns: one query per
-    distinct window over the basin stations of every water body with that window."""
+def _history_daily(engine: Engine, config: Config, bodies: Sequence[WaterBodyConfig], analysis: dt.datetime,
+                   available: Availability | None = None) -> dict[str, list[pd.DataFrame]]:
+    """Per water body, what :func:`monitor.forecasting.history.history_daily` returns (with ``available``):
+    one query per distinct window over the basin stations of every water body with that window."""
     stations = {wb.id: list(basin_stations(config, wb)) for wb in bodies}
     windows = {wb.id: history_windows(wb, analysis) if stations[wb.id] else [] for wb in bodies}
     users: dict[tuple[dt.datetime, dt.datetime], list[str]] = {}
@@ -226,7 +235,8 @@ def _history_daily(engine: Engine, config: Config, bodies: Sequence[WaterBodyCon
     split: dict[tuple, dict[str, pd.DataFrame]] = {}
     for (a, b), ids in users.items():
         union = sorted({s for w in ids for s in stations[w]})
-        frame = daily_means(engine, stations=union, variables=list(HISTORY_VARIABLES), anchor=analysis, start=a, end=b)
+        frame = daily_means(engine, stations=union, variables=list(HISTORY_VARIABLES), anchor=analysis, start=a, end=b,
+                            available=available)
         groups = frame.groupby("station_id", sort=False).indices if len(frame) else {}
         split[(a, b)] = {w: frame.iloc[np.sort(np.concatenate([groups[s] for s in stations[w] if s in groups]
                                                               or [np.array([], dtype=np.intp)]))]

@@ -8,7 +8,10 @@ each water body inside a savepoint (``SAVEPOINT``/``ROLLBACK TO``): a water
 body whose writes fail is rolled back alone and reported, the others
 commit together. The writes of each water body are exactly those of
 ``cycle.record`` (:func:`monitor.forecasting.cycle.record_in`), so a batch
-leaves the store as the same records one by one would.
+leaves the store as the same records one by one would; in a replay the
+observed levels are read through the same
+:class:`~monitor.store.availability.Availability`
+(:func:`monitor.forecasting.late.replay_availability`).
 """
 
 from __future__ import annotations
@@ -20,6 +23,7 @@ from sqlalchemy.engine import Connection, Engine
 
 from monitor.config import Config
 from monitor.forecasting import cycle
+from monitor.forecasting.late import replay_availability
 from monitor.forecasting.observed_level import OBSERVED_LEVEL_VARIABLES, latest_observed
 from monitor.store.lease import LeaseLost
 from monitor.store.readings import readings_frame
@@ -29,14 +33,15 @@ OBSERVED_WINDOW = dt.timedelta(days=1)  # the window of latest_observed's defaul
 
 
 def record_many(engine: Engine, config: Config, outputs: Sequence[cycle.CycleOutputs], *,
-                now: dt.datetime | None = None, guard: Callable[[Connection], None] | None = None
-                ) -> list[dict | Exception]:
+                now: dt.datetime | None = None, guard: Callable[[Connection], None] | None = None,
+                replay: bool = False) -> list[dict | Exception]:
     """Record each of ``outputs`` as :func:`cycle.record` would, in one transaction; returns per output its
     summary or the exception that rolled its writes back. ``guard(conn)`` runs first and its refusal
-    (:class:`~monitor.store.lease.LeaseLost`) is raised: no water body is then recorded."""
+    (:class:`~monitor.store.lease.LeaseLost`) is raised: no water body is then recorded. ``replay``: the
+    observed alert levels from the readings available at each analysis (``cycle.record``'s ``available``)."""
     if not outputs:
         return []
-    observed = _observed_levels(engine, config, outputs)
+    observed = _observed_levels(engine, config, outputs, replay=replay)
     results: list[dict | Exception] = []
     with engine.begin() as conn:
         if guard is not None:
@@ -52,8 +57,10 @@ def record_many(engine: Engine, config: Config, outputs: Sequence[cycle.CycleOut
     return results
 
 
-def _observed_levels(engine: Engine, config: Config, outputs: Sequence[cycle.CycleOutputs]) -> list[dict]:
-    """:func:`latest_observed` of each output with a forecast, from one readings query per analysis time."""
+def _observed_levels(engine: Engine, config: Config, outputs: Sequence[cycle.CycleOutputs], *,
+                     replay: bool = False) -> list[dict]:
+    """:func:`latest_observed` of each output with a forecast, from one readings query per analysis time
+    (in a replay, of the readings available then)."""
     by_time: dict[float, list[str]] = {}
     for out in outputs:
         if out.forecasts:
@@ -63,6 +70,7 @@ def _observed_levels(engine: Engine, config: Config, outputs: Sequence[cycle.Cyc
     for t, stations in by_time.items():
         analysis = from_epoch_days(t)
         frames[t] = readings_frame(engine, stations=sorted(set(stations)), variables=list(OBSERVED_LEVEL_VARIABLES),
-                                   start=analysis - OBSERVED_WINDOW, end=analysis, max_flag=1)
+                                   start=analysis - OBSERVED_WINDOW, end=analysis, max_flag=1,
+                                   available=replay_availability(config, analysis) if replay else None)
     return [latest_observed(None, config, config.water_body(out.water_body_id), from_epoch_days(out.analysis_d),
                             frame=frames[out.analysis_d]) if out.forecasts else {} for out in outputs]

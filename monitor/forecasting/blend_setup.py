@@ -5,8 +5,8 @@ Per chlorophyll quantity and lead day, from the score records
 before the analysis, pooled over the water body's basins: the cases are the
 runs in which every component in use was verified on the same day (a
 component verified in fewer than half of the cases is left out of the fit).
-On those cases the component weights, the mean log error and the spread
-factor are fitted together by minimum-CRPS estimation
+On those cases the component weights and the spread factor are fitted
+together by minimum-CRPS estimation
 (:func:`assimilation.blend.fit_combination`; EMOS, Gneiting et al. 2005),
 then shrunk towards the priors with the weight of ``PRIOR_DAYS`` cases
 (:func:`assimilation.blend.shrink_settings`).
@@ -15,7 +15,7 @@ With fewer than ``MIN_CASES`` cases the documented priors apply: the process
 model and the two statistical forecasts in the proportions of
 ``PRIOR_WEIGHTS`` (Bloomline's choice: the process model alone was measured
 to lose to persistence, the statistical forecasts to be close to it; the
-record takes over within weeks), no bias correction, no spread change. Only
+record takes over within weeks) and no spread change. Only
 records of days that ended at or before the analysis are read, so a hindcast
 stays free of look-ahead.
 """
@@ -23,6 +23,7 @@ stays free of look-ahead.
 from __future__ import annotations
 
 import datetime as dt
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -50,31 +51,54 @@ MIN_COMPONENT_SHARE = 0.5
 _PRIOR = LeadSettings(dict(PRIOR_WEIGHTS))
 
 
-def cases(records: pd.DataFrame) -> tuple[list[str], pd.DataFrame, pd.DataFrame, np.ndarray]:
-    """(components, log means (N, C), log sds (N, C), observed log values (N,)) of one quantity and
-    lead: one row per (run, basin) in which every component kept was verified."""
+@dataclass(frozen=True)
+class Cases:
+    """The record of one quantity and lead as arrays: one row per (run, basin) verified day."""
+
+    mu: np.ndarray      # (N, C) components' member mean of log chlorophyll-a (NaN where not verified)
+    sd: np.ndarray      # (N, C) components' member sd of log chlorophyll-a
+    y: np.ndarray       # (N,) observed log value
+
+
+def case_table(records: pd.DataFrame) -> dict[int, Cases]:
+    """Per lead day, the :class:`Cases` of one quantity's records (every forecaster of ``COMPONENTS``
+    in that order, in one pass over the records)."""
     comp = records[records.forecaster.isin(COMPONENTS) & records.log_sd.notna() & records.log_mean.notna()]
     if comp.empty:
-        return [], pd.DataFrame(), pd.DataFrame(), np.empty(0)
-    key = ["run_id", "basin_id"]
-    mu = comp.pivot_table(index=key, columns="forecaster", values="log_mean", aggfunc="first")
-    sd = comp.pivot_table(index=key, columns="forecaster", values="log_sd", aggfunc="first")
-    obs = comp.groupby(key)["observed"].first()
-    share = mu.notna().mean()
-    names = [c for c in COMPONENTS if c in mu.columns and share[c] >= MIN_COMPONENT_SHARE]
-    rows = mu[names].notna().all(axis=1) & sd[names].notna().all(axis=1)
-    y = np.log(np.maximum(obs[rows].to_numpy(float), LOG_FLOOR_UGL))
-    return names, mu.loc[rows, names], sd.loc[rows, names], y
+        return {}
+    keys = pd.MultiIndex.from_frame(comp[["lead_days", "run_id", "basin_id"]])
+    codes, uniques = pd.factorize(keys)
+    col = comp.forecaster.map({c: i for i, c in enumerate(COMPONENTS)}).to_numpy(int)
+    n, c = len(uniques), len(COMPONENTS)
+    mu, sd, obs = np.full((n, c), np.nan), np.full((n, c), np.nan), np.full(n, np.nan)
+    mu[codes, col] = comp.log_mean.to_numpy(float)
+    sd[codes, col] = comp.log_sd.to_numpy(float)
+    obs[codes] = comp.observed.to_numpy(float)
+    y = np.log(np.maximum(obs, LOG_FLOOR_UGL))
+    lead = np.asarray(uniques.get_level_values(0), dtype=int)
+    return {int(k): Cases(mu[lead == k], sd[lead == k], y[lead == k]) for k in np.unique(lead)}
+
+
+def fit_lead(cases: Cases) -> LeadSettings:
+    """The blend of one lead from its cases: components verified in at least ``MIN_COMPONENT_SHARE``
+    of them take part, on the cases where all of those were verified."""
+    if not len(cases.y):
+        return _PRIOR
+    share = np.isfinite(cases.mu).mean(axis=0)
+    keep = np.flatnonzero(share >= MIN_COMPONENT_SHARE)
+    rows = np.all(np.isfinite(cases.mu[:, keep]) & np.isfinite(cases.sd[:, keep]), axis=1) & np.isfinite(cases.y)
+    if rows.sum() < MIN_CASES or not len(keep):
+        return _PRIOR
+    names = [COMPONENTS[i] for i in keep]
+    prior = np.array([PRIOR_WEIGHTS.get(c, 0.0) for c in names]) + 1e-3
+    fitted = fit_combination(cases.mu[rows][:, keep], cases.sd[rows][:, keep], cases.y[rows], prior)
+    return shrink_settings(names, fitted, PRIOR_WEIGHTS, int(rows.sum()), PRIOR_DAYS)
 
 
 def lead_settings(records: pd.DataFrame) -> LeadSettings:
     """The blend of one lead from its records (one quantity, one lead)."""
-    names, mu, sd, y = cases(records)
-    if len(y) < MIN_CASES or not names:
-        return _PRIOR
-    prior = np.array([PRIOR_WEIGHTS.get(c, 0.0) for c in names]) + 1e-3
-    fitted = fit_combination(mu.to_numpy(), sd.to_numpy(), y, prior)
-    return shrink_settings(names, fitted, PRIOR_WEIGHTS, len(y), PRIOR_DAYS)
+    table = case_table(records)
+    return fit_lead(next(iter(table.values()))) if table else _PRIOR
 
 
 def blend_settings(records: pd.DataFrame, analysis: dt.datetime, horizon: int) -> dict[str, list[LeadSettings]]:
@@ -84,9 +108,8 @@ def blend_settings(records: pd.DataFrame, analysis: dt.datetime, horizon: int) -
                           & (records.valid_utc > pd.Timestamp(analysis) - pd.Timedelta(days=RECORD_DAYS))]
     out = {}
     for quantity in OBSERVED_BY:
-        sub = records[records.quantity == quantity] if len(records) else records
-        by_lead = dict(tuple(sub.groupby("lead_days"))) if len(sub) else {}
-        out[quantity] = [lead_settings(by_lead[k]) if k in by_lead else _PRIOR for k in range(1, horizon + 1)]
+        table = case_table(records[records.quantity == quantity]) if len(records) else {}
+        out[quantity] = [fit_lead(table[k]) if k in table else _PRIOR for k in range(1, horizon + 1)]
     return out
 
 
@@ -94,5 +117,5 @@ def read_blend_settings(engine: Engine, wb: WaterBodyConfig, analysis: dt.dateti
     """:func:`blend_settings` from the records stored for ``wb``."""
     from monitor.verification.live import stored_records
 
-    records = stored_records(engine, wb.id, since=analysis - dt.timedelta(days=RECORD_DAYS))
+    records = stored_records(engine, wb.id, since=analysis - dt.timedelta(days=RECORD_DAYS), forecasters=COMPONENTS)
     return blend_settings(records, analysis, wb.alerts.horizon_days)

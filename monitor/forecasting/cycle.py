@@ -49,12 +49,13 @@ from monitor.forecasting.history import (
     history_from_daily,
     seasonal_mean,
 )
-from monitor.forecasting.late import available_in_replay, delayed_restart, late_restart
+from monitor.forecasting.late import delayed_restart, late_restart, replay_availability
 from monitor.forecasting.observations import OBSERVED_VARIABLES, to_observations
 from monitor.forecasting.observed_level import latest_observed
 from monitor.forecasting.publish import publish
 from monitor.forecasting.quantities import QUANTITIES, quantity_series
 from monitor.store import runs as store
+from monitor.store.availability import Availability
 from monitor.store.readings import latest_driver_forecast, readings_frame
 from monitor.timeutil import from_epoch_days, to_epoch_days
 from monitor.verification.live import stored_records
@@ -101,10 +102,11 @@ class CycleInputs:
 
 
 def station_readings(engine: Engine, config: Config, wb: WaterBodyConfig, start: dt.datetime,
-                     end: dt.datetime) -> pd.DataFrame:
-    """Stored readings of every station of ``wb`` (basins, gauges, weather) in [start, end]."""
+                     end: dt.datetime, *, available: Availability | None = None) -> pd.DataFrame:
+    """Stored readings of every station of ``wb`` (basins, gauges, weather) in [start, end]
+    (in a replay, ``available``: only those available by then)."""
     return readings_frame(engine, stations=cycle_stations(config, wb), start=start, end=end,
-                          max_flag=assimilated_flag(config))
+                          max_flag=assimilated_flag(config), available=available)
 
 
 def cycle_stations(config: Config, wb: WaterBodyConfig) -> list[str]:
@@ -127,35 +129,38 @@ def observations_frame(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
 
 
 def assimilable(engine: Engine, config: Config, wb: WaterBodyConfig, frame: pd.DataFrame, after: dt.datetime,
-                until: dt.datetime, *, replay: bool = False) -> pd.DataFrame:
+                until: dt.datetime, *, available: Availability | None = None) -> pd.DataFrame:
     """The plain readings of ``frame`` and the censored ones of the store that the filter may use in
-    (after, until] (:func:`assimilable_rows`)."""
-    return assimilable_rows(frame, censored_frame(engine, config, wb, after, until), config, wb, after, until,
-                            replay=replay)
+    (after, until] (:func:`assimilable_rows`); in a replay (``available``) only those available by then
+    (time plus the station's reporting delay)."""
+    if available is not None:
+        frame = available.filter(frame)
+    return assimilable_rows(frame, censored_frame(engine, config, wb, after, until, available=available),
+                            config, wb, after)
 
 
 def assimilable_rows(frame: pd.DataFrame, censored: pd.DataFrame, config: Config, wb: WaterBodyConfig,
-                     after: dt.datetime, until: dt.datetime, *, replay: bool = False) -> pd.DataFrame:
+                     after: dt.datetime) -> pd.DataFrame:
     """The plain readings of ``frame`` later than ``after`` and the ``censored`` ones (of
-    :func:`censored_frame`) that the filter may use, with columns ``censored`` and ``detection_limit``;
-    in a replay only those available by ``until`` (time plus the station's reporting delay). No I/O."""
+    :func:`censored_frame`) that the filter may use, with columns ``censored`` and ``detection_limit``.
+    No I/O: in a replay both frames were read with the replay's availability."""
     plain = observations_frame(frame, config, wb, after).assign(censored=False, detection_limit=np.nan)
     parts = [f for f in (plain, censored) if not f.empty]
-    both = pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
-    return available_in_replay(both, config, wb, until) if replay else both
+    return pd.concat(parts, ignore_index=True) if len(parts) == 2 else (parts[0] if parts else plain)
 
 
 def censored_frame(engine: Engine, config: Config, wb: WaterBodyConfig, after: dt.datetime,
-                   until: dt.datetime) -> pd.DataFrame:
+                   until: dt.datetime, *, available: Availability | None = None) -> pd.DataFrame:
     """The censored (below-detection) readings of ``wb``'s basins in (after, until], with their limits."""
     stations = [s.id for s in config.stations_of(wb.id) if s.basin is not None]
     frame = readings_frame(engine, stations=stations, variables=OBSERVED_VARIABLES, start=after, end=until,
-                           max_flag=0, include_censored=True)
+                           max_flag=0, include_censored=True, available=available)
     return frame[frame.censored & (frame.time_utc > after)]
 
 
 def first_guess(engine: Engine | None, config: Config, wb: WaterBodyConfig, spec: ModelSpec,
-                at: dt.datetime, *, frame: pd.DataFrame | None = None) -> np.ndarray:
+                at: dt.datetime, *, frame: pd.DataFrame | None = None,
+                available: Availability | None = None) -> np.ndarray:
     """A first-guess state from the most recent samples before ``at`` (defaults where none).
 
     Each pool takes the median of its samples; detrital P is what a total-P
@@ -168,7 +173,8 @@ def first_guess(engine: Engine | None, config: Config, wb: WaterBodyConfig, spec
     B, G = spec.n_basins, spec.n_groups
     cyano = spec.cyanobacteria_index
     if frame is None:
-        frame = station_readings(engine, config, wb, at - dt.timedelta(days=14), at + dt.timedelta(days=2))
+        frame = station_readings(engine, config, wb, at - dt.timedelta(days=14), at + dt.timedelta(days=2),
+                                 available=available)
     frame = observations_frame(frame, config, wb, at - dt.timedelta(days=14))
     basin_of = {s.id: wb.basin_index(s.basin) for s in config.stations_of(wb.id) if s.basin}
     N = np.full(B, DEFAULT_FIRST_GUESS.nitrogen_ugL)
@@ -251,7 +257,8 @@ class FetchedInputs:
     history_daily: list[pd.DataFrame]
     #: the verified record of the blend's window (:func:`monitor.verification.live.stored_records`)
     records: pd.DataFrame
-    replay: bool = False
+    #: in a replay, what the readings above were restricted to (:func:`monitor.forecasting.late.replay_availability`)
+    available: Availability | None = None
 
 
 def cycle_start(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
@@ -296,7 +303,9 @@ def first_guess_window(start: dt.datetime) -> tuple[dt.datetime, dt.datetime]:
 
 def fetch(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
           *, season_start: dt.datetime | None = None, replay: bool = False) -> FetchedInputs:
-    """Everything one cycle of ``wb`` at ``analysis`` reads from the store (see :func:`gather`)."""
+    """Everything one cycle of ``wb`` at ``analysis`` reads from the store (see :func:`gather`); in a
+    replay, every reading through the replay's :class:`~monitor.store.availability.Availability`."""
+    available = replay_availability(config, analysis) if replay else None
     found = store.latest_checkpoint(engine, wb.id, at_or_before=analysis - dt.timedelta(seconds=1))
     start, blob, late_note = cycle_start(engine, config, wb, analysis, found, season_start=season_start,
                                          replay=replay)
@@ -304,12 +313,12 @@ def fetch(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.date
                if wb.weather_station else pd.DataFrame())
     return FetchedInputs(
         water_body_id=wb.id, analysis=analysis, start=start, checkpoint=blob, late_note=late_note,
-        readings=station_readings(engine, config, wb, *reading_window(start, analysis)),
-        censored=censored_frame(engine, config, wb, start, analysis),
-        first_guess_readings=(station_readings(engine, config, wb, *first_guess_window(start))
+        readings=station_readings(engine, config, wb, *reading_window(start, analysis), available=available),
+        censored=censored_frame(engine, config, wb, start, analysis, available=available),
+        first_guess_readings=(station_readings(engine, config, wb, *first_guess_window(start), available=available)
                               if blob is None else None),
-        weather=weather, history_daily=history_daily(engine, config, wb, analysis),
-        records=stored_records(engine, wb.id, since=analysis - dt.timedelta(days=RECORD_DAYS)), replay=replay)
+        weather=weather, history_daily=history_daily(engine, config, wb, analysis, available=available),
+        records=stored_records(engine, wb.id, since=analysis - dt.timedelta(days=RECORD_DAYS)), available=available)
 
 
 def assemble(config: Config, wb: WaterBodyConfig, raw: FetchedInputs) -> CycleInputs:
@@ -328,7 +337,7 @@ def assemble(config: Config, wb: WaterBodyConfig, raw: FetchedInputs) -> CycleIn
     history = history_from_daily(config, wb, raw.history_daily)
     scenarios = outlook_drivers(None, config, wb, series, analysis, horizon, history=history, notes=notes,
                                 weather=raw.weather)
-    observed = assimilable_rows(raw.readings, raw.censored, config, wb, start, analysis, replay=raw.replay)
+    observed = assimilable_rows(raw.readings, raw.censored, config, wb, start)
     return CycleInputs(
         water_body_id=wb.id, analysis_d=float(to_epoch_days(analysis)), spec=spec, filter=cfg,
         checkpoint=raw.checkpoint, start_d=float(to_epoch_days(start)), initial_state=guess,
@@ -350,8 +359,9 @@ def gather(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.dat
 
     ``replay``: readings count as available by their time stamps plus their
     station's ``reporting_delay_days`` (a replay of a stored history, where
-    arrival times mean nothing); those that became available since the
-    newest checkpoint are re-analysed like late readings.
+    arrival times mean nothing) for every read here — observations, drivers
+    and their substitutes, the first guess, the observed history; those that
+    became available since the newest checkpoint are re-analysed like late readings.
     """
     return assemble(config, wb, fetch(engine, config, wb, analysis, season_start=season_start, replay=replay))
 
@@ -416,10 +426,10 @@ def compute(inputs: CycleInputs) -> CycleOutputs:
 
 def blend_diagnostics(settings: dict, published: bool) -> dict:
     """The blend's settings of this run, for the run's diagnostics: per chlorophyll quantity and
-    lead day the component weights, the mean log error removed and the spread factor."""
+    lead day the component weights and the spread factor."""
     return {"published": published,
             "by_quantity": {q: [{"lead_days": k, "weights": {c: round(w, 4) for c, w in sorted(s.weights.items())},
-                                 "bias_ln": round(s.bias_ln, 4), "spread_factor": round(s.spread_factor, 4)}
+                                 "spread_factor": round(s.spread_factor, 4)}
                                 for k, s in enumerate(leads, start=1)]
                             for q, leads in settings.items()}}
 
@@ -512,7 +522,7 @@ def member_rows(outputs: CycleOutputs):
 
 
 def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.datetime | None = None,
-           guard: Callable[[Connection], None] | None = None) -> dict:
+           guard: Callable[[Connection], None] | None = None, available: Availability | None = None) -> dict:
     """Store a cycle's checkpoint and forecast and evaluate the alert rules, in one transaction; returns a summary.
 
     The checkpoint, the forecast run with its values and members, the alert
@@ -525,11 +535,12 @@ def record(engine: Engine, config: Config, outputs: CycleOutputs, *, now: dt.dat
     the transaction and raises to refuse it (the scheduler's lease).
 
     After a cold start the alert rules wait ``spin_up_cycles`` cycles, while
-    the ensemble's first-guess spread settles on the readings.
+    the ensemble's first-guess spread settles on the readings. ``available``
+    (a replay): the observed alert level from the readings available by then.
     """
     wb = config.water_body(outputs.water_body_id)
     analysis = from_epoch_days(outputs.analysis_d)
-    observed = latest_observed(engine, config, wb, analysis) if outputs.forecasts else {}
+    observed = latest_observed(engine, config, wb, analysis, available=available) if outputs.forecasts else {}
     with engine.begin() as conn:
         if guard is not None:
             guard(conn)

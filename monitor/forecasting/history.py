@@ -24,6 +24,7 @@ import pandas as pd
 from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
+from monitor.store.availability import Availability
 from monitor.store.daily import daily_means
 from monitor.timeutil import to_epoch_days
 
@@ -109,13 +110,15 @@ def basin_stations(config: Config, wb: WaterBodyConfig) -> dict[str, str]:
     return {s.id: s.basin for s in config.stations_of(wb.id) if s.basin}
 
 
-def history_daily(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> list[pd.DataFrame]:
+def history_daily(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                  *, available: Availability | None = None) -> list[pd.DataFrame]:
     """The daily means of ``wb``'s basin stations in each of :func:`history_windows` (none without basin
-    stations)."""
+    stations); in a replay, ``available``: of the readings available by then."""
     stations = list(basin_stations(config, wb))
     if not stations:
         return []
-    return [daily_means(engine, stations=stations, variables=list(HISTORY_VARIABLES), anchor=analysis, start=a, end=b)
+    return [daily_means(engine, stations=stations, variables=list(HISTORY_VARIABLES), anchor=analysis, start=a, end=b,
+                        available=available)
             for a, b in history_windows(wb, analysis)]
 
 
@@ -129,9 +132,11 @@ def history_from_daily(config: Config, wb: WaterBodyConfig, frames: list[pd.Data
     return series_by_basin(frame.drop_duplicates(["station_id", "variable", "day_end_utc"]), basin_of)
 
 
-def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> ObservedHistory:
-    """The recent and same-season-earlier daily history of ``wb``'s basins up to ``analysis``."""
-    return history_from_daily(config, wb, history_daily(engine, config, wb, analysis))
+def observed_history(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                     *, available: Availability | None = None) -> ObservedHistory:
+    """The recent and same-season-earlier daily history of ``wb``'s basins up to ``analysis`` (in a
+    replay, ``available``: of the readings available by then)."""
+    return history_from_daily(config, wb, history_daily(engine, config, wb, analysis, available=available))
 
 
 def seasonal_mean(history: ObservedHistory, basin: str, quantity: str, centre_d: float,

@@ -3,7 +3,7 @@
 Live, a reading is late when it was received after the checkpoint that
 covered its time (:func:`late_restart`). A replay has no arrival times: a
 station's ``reporting_delay_days`` stands for them, so a reading counts as
-available at its time plus that delay (:func:`available_in_replay`), and
+available at its time plus that delay (:func:`replay_availability`), and
 one that became available since the newest checkpoint is re-analysed the
 same way (:func:`delayed_restart`).
 """
@@ -12,12 +12,12 @@ from __future__ import annotations
 
 import datetime as dt
 
-import pandas as pd
 from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
 from monitor.forecasting.observations import OBSERVED_VARIABLES
 from monitor.store import runs as store
+from monitor.store.availability import Availability
 from monitor.store.late import checkpoint_created, late_readings
 from monitor.store.readings import readings_frame
 from monitor.timeutil import EPOCH
@@ -53,21 +53,10 @@ def late_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: 
                      f"(earliest {earliest:%Y-%m-%d %H:%M} UTC){older}")
 
 
-def _delays(config: Config, wb: WaterBodyConfig) -> dict[str, float]:
-    """Reporting delay [d] of each basin station of ``wb`` that declares one."""
-    return {s.id: s.reporting_delay_days for s in config.stations_of(wb.id)
-            if s.basin and s.reporting_delay_days > 0}
-
-
-def available_in_replay(frame: pd.DataFrame, config: Config, wb: WaterBodyConfig,
-                        analysis: dt.datetime) -> pd.DataFrame:
-    """The rows of ``frame`` (readings of ``wb``) available at ``analysis`` in a replay: time plus the
-    station's reporting delay at or before it."""
-    delays = _delays(config, wb)
-    if frame.empty or not delays:
-        return frame
-    delay = pd.to_timedelta(frame.station_id.map(delays).fillna(0.0).to_numpy(dtype=float), unit="D")
-    return frame[(frame.time_utc + delay) <= pd.Timestamp(analysis)]
+def replay_availability(config: Config, analysis: dt.datetime) -> Availability:
+    """What a replayed cycle at ``analysis`` may see: each reading from its time plus its station's
+    ``reporting_delay_days`` (every station that declares one)."""
+    return Availability(analysis, {s.id: s.reporting_delay_days for s in config.stations if s.reporting_delay_days > 0})
 
 
 def delayed_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
@@ -75,18 +64,16 @@ def delayed_restart(engine: Engine, config: Config, wb: WaterBodyConfig, analysi
     """In a replay: the checkpoint to start from when readings stamped at or before the newest
     checkpoint became available (time + reporting delay) after it, within ``late_window_days``.
     Returns (checkpoint, message) like :func:`late_restart`."""
-    delays = _delays(config, wb)
-    if not delays:
+    now = replay_availability(config, analysis)
+    stations = [s.id for s in config.stations_of(wb.id) if s.basin and s.id in now.delays_d]
+    if not stations:
         return found, ""
     window_start = analysis - dt.timedelta(days=config.filter.late_window_days)
     max_flag = 3 if config.filter.assimilate_suspect else 1
-    frame = readings_frame(engine, stations=list(delays), variables=OBSERVED_VARIABLES, start=window_start,
-                           end=found[0], max_flag=max_flag, include_censored=True)
-    if frame.empty:
-        return found, ""
-    delay = pd.to_timedelta(frame.station_id.map(delays).to_numpy(dtype=float), unit="D")
-    available = frame.time_utc + delay
-    late = frame[(available > pd.Timestamp(found[0])) & (available <= pd.Timestamp(analysis))]
+    frame = readings_frame(engine, stations=stations, variables=OBSERVED_VARIABLES, start=window_start,
+                           end=found[0], max_flag=max_flag, include_censored=True, available=now)
+    # available now, but not yet when the newest checkpoint was made
+    late = frame.drop(index=replay_availability(config, found[0]).filter(frame).index)
     if late.empty:
         return found, ""
     earliest = late.time_utc.min().to_pydatetime()

@@ -43,11 +43,11 @@ from monitor.timeutil import to_epoch_days
 
 #: the stored variables the filter's observations are made of (ammonium joins nitrate as DIN)
 OBSERVED_VARIABLES = (*OBSERVABLE_KINDS, "ammonium")
-_KEY = ["station_id", "variable", "time_utc"]
+_KEY = ["station_id", "variable", "time_utc", "whole_day"]  # a whole-day value is not an instant reading
 
 
 def one_per_source(frame: pd.DataFrame, config: Config) -> pd.DataFrame:
-    """One row per (station, variable, time): the best QC flag, then the first source by the config's
+    """One row per (station, variable, time, whole day or instant): the best QC flag, then the first source by the config's
     feed order (sources of no configured feed after them, alphabetically)."""
     if frame.empty or not frame.duplicated(_KEY).any():
         return frame

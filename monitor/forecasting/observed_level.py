@@ -8,6 +8,7 @@ import pandas as pd
 from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
+from monitor.store.availability import Availability
 from monitor.store.readings import readings_frame
 
 #: What the observed alert level is judged on, in order: phycocyanin (cyanobacteria chlorophyll-a);
@@ -17,13 +18,15 @@ OBSERVED_LEVEL_VARIABLES = ("phycocyanin", "chlorophyll_a", "chlorophyll_fluores
 
 
 def latest_observed(engine: Engine | None, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
-                    window: dt.timedelta = dt.timedelta(days=1), *,
-                    frame: pd.DataFrame | None = None) -> dict[str, float | None]:
+                    window: dt.timedelta = dt.timedelta(days=1), *, frame: pd.DataFrame | None = None,
+                    available: Availability | None = None) -> dict[str, float | None]:
     """Mean QC-passed reading per basin over the last day [µg/L] of the first variable of
-    ``OBSERVED_LEVEL_VARIABLES`` that the basin is monitored for (None without one that day).
+    ``OBSERVED_LEVEL_VARIABLES`` that the basin is monitored for (None without one that day); in a
+    replay (``available``) of the readings available by ``analysis``.
 
     ``frame``: QC-passed readings (flag 1) over [analysis − window, analysis] that hold at least
-    those of ``wb``'s stations, when already read (else read from ``engine``)."""
+    those of ``wb``'s stations, when already read (else read from ``engine``; a ``frame`` given
+    in a replay must already hold only the available readings)."""
     out: dict[str, float | None] = {b.id: None for b in wb.basins}
     variable_of: dict[str, str] = {}
     stations: dict[str, str] = {}
@@ -38,7 +41,7 @@ def latest_observed(engine: Engine | None, config: Config, wb: WaterBodyConfig, 
         return out
     if frame is None:
         frame = readings_frame(engine, stations=list(stations), variables=sorted(set(variable_of.values())),
-                               start=analysis - window, end=analysis, max_flag=1)
+                               start=analysis - window, end=analysis, max_flag=1, available=available)
     else:
         frame = frame[frame.station_id.isin(list(stations)) & frame.variable.isin(set(variable_of.values()))]
     if not frame.empty:

@@ -1,7 +1,7 @@
 """Repeats inside one batch: equal values are duplicates, differing ones rejections.
 
-A reading is identified by its station, variable and time (and issue time
-for weather forecasts); the first record of a key wins, a later record with
+A reading is identified by its station, variable and time, and whether it
+is a whole-day value (and issue time for weather forecasts); the first record of a key wins, a later record with
 the same value counts as a duplicate and one with another value is
 rejected, naming the line it conflicts with. Two readings have the same
 value when both are missing, both are plain numbers that agree, or both are
@@ -51,13 +51,16 @@ def dedupe_batch(parsed: Parsed, rejections: list[Rejection], keys: list[str]) -
     n = parsed.value.size
     st_codes, st_names = pd.factorize(parsed.station, sort=True)
     var_codes, var_names = pd.factorize(parsed.variable, sort=True)
-    sort_keys = [parsed.line, parsed.time_ns] + ([parsed.issued_ns] if issued else []) + [var_codes, st_codes]
+    sort_keys = [parsed.line, parsed.whole_day, parsed.time_ns] + ([parsed.issued_ns] if issued else []) \
+        + [var_codes, st_codes]
     order = np.lexsort(sort_keys) if n else np.array([], dtype=np.int64)
     st_c, var_c, t = st_codes[order], var_codes[order], parsed.time_ns[order]
     value, line, censored = parsed.value[order], parsed.line[order], parsed.censored[order]
     same_key = np.zeros(n, dtype=bool)
     if n > 1:
-        same_key[1:] = (st_c[1:] == st_c[:-1]) & (var_c[1:] == var_c[:-1]) & (t[1:] == t[:-1])
+        whole = parsed.whole_day[order]
+        same_key[1:] = (st_c[1:] == st_c[:-1]) & (var_c[1:] == var_c[:-1]) & (t[1:] == t[:-1]) \
+            & (whole[1:] == whole[:-1])
         if issued:
             iss = parsed.issued_ns[order]
             same_key[1:] &= iss[1:] == iss[:-1]

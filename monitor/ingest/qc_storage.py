@@ -64,13 +64,14 @@ class _Stored:
     source: np.ndarray
     censored: np.ndarray  # bool
     limit: np.ndarray  # a censored reading's detection limit (NaN: unknown, or not censored)
+    whole_day: np.ndarray  # bool: a value for the local day ending at ``t``
 
     def __len__(self) -> int:
         return int(self.t.size)
 
     def subset(self, mask: np.ndarray) -> _Stored:
         return _Stored(self.id[mask], self.t[mask], self.value[mask], self.qc_flag[mask], self.qc_tests[mask],
-                       self.source[mask], self.censored[mask], self.limit[mask])
+                       self.source[mask], self.censored[mask], self.limit[mask], self.whole_day[mask])
 
     def number(self) -> np.ndarray:
         """The value, or a censored reading's limit: what a new reading at the same time is compared with."""
@@ -193,7 +194,8 @@ def _censored_digits(digits: np.ndarray, censored: np.ndarray, limits: np.ndarra
 
 def _merge_stored(stored: _Stored, g: pd.DataFrame, parsed: Parsed,
                   rejections: list[Rejection]) -> tuple[np.ndarray, _Stored, np.ndarray, int]:
-    """Match the batch's readings of a series with stored ones at the same time.
+    """Match the batch's readings of a series with stored ones at the same time (and both whole-day values or
+    both instant readings: a whole-day value stamped at local midnight is not an instant reading then).
 
     Returns (keep: the batch readings that are new; the stored readings with
     missing ones filled in; fill_from: for each stored reading, the batch
@@ -212,12 +214,15 @@ def _merge_stored(stored: _Stored, g: pd.DataFrame, parsed: Parsed,
     if not len(stored):
         return keep, merged, fill_from, duplicate
     number = stored.number()
-    pos = np.searchsorted(stored.t, t_new)
-    pos_c = np.clip(pos, 0, len(stored) - 1)
-    hit = stored.t[pos_c] == t_new
+    # key = (time, whole day) as one integer, 2·t + whole_day (times in ns since 1970 fit in int64 twice over)
+    key_stored = 2 * stored.t + stored.whole_day.astype(np.int64)
+    key_new = 2 * t_new.astype(np.int64) + g["whole_day"].to_numpy(dtype=bool).astype(np.int64)
+    by_key = np.argsort(key_stored, kind="stable")
+    pos = np.clip(np.searchsorted(key_stored[by_key], key_new), 0, len(stored) - 1)
+    hit = key_stored[by_key][pos] == key_new
     for i in np.nonzero(hit)[0]:
         keep[i] = False
-        j = pos_c[i]
+        j = by_key[pos[i]]
         old_missing = not merged.censored[j] and np.isnan(merged.value[j])
         if same_readings(np.array([v_new[i]]), np.array([c_new[i]]), np.array([number[j]]),
                          np.array([merged.censored[j]]))[0]:
@@ -282,7 +287,7 @@ def _insert_readings(conn: Connection, rows: list[tuple]) -> int:
     sql = (f"INSERT INTO readings (station_id, variable, time_utc, value, censored, detection_limit, unit, "
            f"qc_flag, qc_tests, whole_day, source, batch_id) "
            f"VALUES ({ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}, {ph}) "
-           f"ON CONFLICT (station_id, variable, time_utc, source) DO NOTHING")
+           f"ON CONFLICT (station_id, variable, time_utc, source, whole_day) DO NOTHING")
     total = 0
     for k in range(0, len(rows), INSERT_CHUNK):
         part = rows[k:k + INSERT_CHUNK]
@@ -300,7 +305,7 @@ def _stored(conn: Connection, station: str, variable: str, source: str | None, t
     d = conn.dialect.name
     ph = param_marker(conn)
     lo, hi = db_times(np.array([t0, t1]), d)
-    sql = (f"SELECT id, time_utc, value, qc_flag, qc_tests, source, censored, detection_limit FROM readings "
+    sql = (f"SELECT id, time_utc, value, qc_flag, qc_tests, source, censored, detection_limit, whole_day FROM readings "
            f"WHERE station_id = {ph} AND variable = {ph} AND time_utc >= {ph} AND time_utc <= {ph}")
     params = [station, variable, lo, hi]
     if source is not None:
@@ -311,14 +316,15 @@ def _stored(conn: Connection, station: str, variable: str, source: str | None, t
         e = np.array([], dtype=np.int64)
         f = np.array([], dtype=float)
         return _Stored(e, e, f, e, np.array([], dtype=object), np.array([], dtype=object),
-                       np.array([], dtype=bool), f)
-    ids, times, values, flags, tests, sources, censored, limits = zip(*rows)
+                       np.array([], dtype=bool), f, np.array([], dtype=bool))
+    ids, times, values, flags, tests, sources, censored, limits, whole_day = zip(*rows)
     cens = np.asarray(censored, dtype=np.int64) != 0
     return _Stored(np.asarray(ids, dtype=np.int64), ns_from_db(times, d),
                    np.array([np.nan if v is None else v for v in values], dtype=float),
                    np.asarray(flags, dtype=np.int64), np.asarray(tests, dtype=object),
                    np.asarray(sources, dtype=object), cens,
-                   np.array([np.nan if x is None else x for x in limits], dtype=float))
+                   np.array([np.nan if x is None else x for x in limits], dtype=float),
+                   np.asarray(whole_day, dtype=np.int64) != 0)
 
 
 def _update_neighbours(conn: Connection, stored: _Stored, flag, digits, in_range: np.ndarray) -> None:

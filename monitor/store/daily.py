@@ -23,6 +23,7 @@ import pandas as pd
 from sqlalchemy import BigInteger, Integer, and_, case, cast, func, literal, or_, select
 from sqlalchemy.engine import Engine
 
+from monitor.store.availability import Availability
 from monitor.store.schema import readings
 from monitor.timeutil import UTC
 
@@ -44,7 +45,7 @@ def _epoch_seconds(engine: Engine):
 
 def daily_means(engine: Engine, *, stations: Iterable[str], variables: Iterable[str], anchor: dt.datetime,
                 start: dt.datetime, end: dt.datetime, max_flag: int = 1,
-                with_censored: bool = False) -> pd.DataFrame:
+                with_censored: bool = False, available: Availability | None = None) -> pd.DataFrame:
     """Mean and count of the readings with ``qc_flag <= max_flag`` per station, variable and day window.
 
     Readings in (start, end]; ``anchor`` (aware) fixes the windows' time of day.
@@ -54,7 +55,8 @@ def daily_means(engine: Engine, *, stations: Iterable[str], variables: Iterable[
     readings in the window (whatever their QC flag), and
     ``detection_limit``, the largest of their known limits [canonical unit]
     (NaN when none is known); a window holding only censored readings then
-    has a row too, with value NaN and n 0.
+    has a row too, with value NaN and n 0. ``available``: only the readings
+    available then (a replay's reporting delays, :mod:`monitor.store.availability`).
     """
     a = int(anchor.timestamp())
     s = _epoch_seconds(engine)
@@ -64,6 +66,8 @@ def daily_means(engine: Engine, *, stations: Iterable[str], variables: Iterable[
     r = readings.c
     plain = and_(r.censored == 0, r.qc_flag <= int(max_flag), r.value.is_not(None))
     where = [r.station_id.in_(list(stations)), r.variable.in_(list(variables)), r.time_utc > start, r.time_utc <= end]
+    if available is not None:
+        where.append(available.condition(r.station_id, r.time_utc))
     columns = [r.station_id, r.variable, index]
     if with_censored:
         where.append(or_(plain, r.censored != 0))

@@ -15,13 +15,15 @@ import pandas as pd
 from sqlalchemy import String, and_, case, func, or_, select, type_coerce
 from sqlalchemy.engine import Engine
 
+from monitor.store.availability import Availability
 from monitor.store.schema import driver_forecasts, ingest_batches, readings, rejected_rows
 from monitor.timeutil import aware_utc, utc_from_db, utc_series_from_db
 
 
 def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
                    variables: Iterable[str] | None = None, start=None, end=None,
-                   max_flag: int = 1, include_censored: bool = False) -> pd.DataFrame:
+                   max_flag: int = 1, include_censored: bool = False,
+                   available: Availability | None = None) -> pd.DataFrame:
     """Stored readings with ``qc_flag <= max_flag`` (1: passed only; 3: with suspect; 9: everything).
 
     start and end [aware datetimes] bound ``time_utc`` inclusively. Columns
@@ -34,6 +36,7 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
     as their value, and two more columns say what they mean: ``censored``
     (bool) and ``detection_limit`` (the limit in the canonical unit, NaN
     when unknown or not censored) — "below this" information.
+    ``available``: only the readings available then (a replay's reporting delays).
     """
     start = aware_utc(start, "start")
     end = aware_utc(end, "end")
@@ -47,6 +50,8 @@ def readings_frame(engine: Engine, *, stations: Iterable[str] | None = None,
         cond.append(readings.c.time_utc >= start)
     if end is not None:
         cond.append(readings.c.time_utc <= end)
+    if available is not None:
+        cond.append(available.condition(readings.c.station_id, readings.c.time_utc))
     extra = [readings.c.censored, readings.c.detection_limit] if include_censored else []
     q = (select(readings.c.station_id, readings.c.variable, type_coerce(readings.c.time_utc, String),
                 readings.c.value,

@@ -132,7 +132,8 @@ readings = Table(
     # monitor.ingest.cells); 0 = a value at the instant time_utc
     Column("whole_day", SmallInteger, nullable=False, default=0, server_default=text("0")),
     # The unique index also serves every (station, variable, time range) query: no second index.
-    UniqueConstraint("station_id", "variable", "time_utc", "source"),
+    # a whole-day value (stamped at the end of its local day) and an instant reading at that time are two readings
+    UniqueConstraint("station_id", "variable", "time_utc", "source", "whole_day"),
 )
 
 driver_forecasts = Table(

@@ -21,6 +21,7 @@ from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
 from monitor.store import schema
+from monitor.store.availability import Availability
 from monitor.verification import summary
 from monitor.verification.pairs import water_body_pairs
 from monitor.verification.records import RECORD_COLUMNS, pair_records
@@ -33,11 +34,13 @@ def levels_of(wb: WaterBodyConfig) -> dict[str, tuple[float, ...]]:
     return {wb.id: tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels)}
 
 
-def score_recent(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime) -> int:
+def score_recent(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.datetime,
+                 *, available: Availability | None = None) -> int:
     """Score ``wb``'s runs issued in the last horizon + ``RESCORE_DAYS`` days against the readings up to
-    ``analysis``; returns the number of records written."""
+    ``analysis`` (in a replay, ``available``: those available by then); returns the number of records written."""
     first = analysis - dt.timedelta(days=wb.alerts.horizon_days + RESCORE_DAYS)
-    pairs = water_body_pairs(engine, engine, config, wb, first=first, last=analysis, until=analysis)
+    pairs = water_body_pairs(engine, engine, config, wb, first=first, last=analysis, until=analysis,
+                             available=available)
     records = pair_records(pairs, levels_of(wb))
     t = schema.forecast_scores
     runs = schema.forecast_runs
@@ -68,12 +71,16 @@ def _rows(records: pd.DataFrame) -> list[dict]:
     return rows
 
 
-def stored_records(engine: Engine, water_body_id: str, since: dt.datetime | None = None) -> pd.DataFrame:
-    """The stored score records of a water body (valid on or after ``since``), as ``RECORD_COLUMNS``."""
+def stored_records(engine: Engine, water_body_id: str, since: dt.datetime | None = None,
+                   forecasters: tuple[str, ...] | None = None) -> pd.DataFrame:
+    """The stored score records of a water body (valid on or after ``since``; of ``forecasters`` only
+    when given), as ``RECORD_COLUMNS``."""
     t = schema.forecast_scores
     q = select(t).where(t.c.water_body_id == water_body_id)
     if since is not None:
         q = q.where(t.c.valid_utc >= since)
+    if forecasters is not None:
+        q = q.where(t.c.forecaster.in_(forecasters))
     with engine.connect() as conn:
         frame = pd.DataFrame(conn.execute(q).mappings().all())
     if frame.empty:

@@ -23,6 +23,7 @@ from sqlalchemy.engine import Engine
 from monitor.config import Config, WaterBodyConfig
 from monitor.forecasting.baselines import BASELINES
 from monitor.store import schema
+from monitor.store.availability import Availability
 from monitor.store.daily import daily_means
 from monitor.store.runs import load_forecast_members
 
@@ -71,12 +72,15 @@ def stored_runs(engine: Engine, water_body_id: str, first=None, last=None) -> pd
         return pd.DataFrame(conn.execute(q.order_by(runs.c.analysis_utc)).all(), columns=["id", "analysis_utc"])
 
 
-def observed_daily(engine: Engine, config: Config, wb: WaterBodyConfig, anchor, start, end) -> pd.DataFrame:
+def observed_daily(engine: Engine, config: Config, wb: WaterBodyConfig, anchor, start, end,
+                   available: Availability | None = None) -> pd.DataFrame:
     """QC-passed daily means per basin and variable on windows anchored at ``anchor`` (stations of a
-    basin averaged): columns basin_id, variable, day_end_utc, value, n."""
+    basin averaged; in a replay, ``available``: of the readings available by then): columns basin_id,
+    variable, day_end_utc, value, n."""
     basin_of = {s.id: s.basin for s in config.stations_of(wb.id) if s.basin}
     variables = sorted({v for s in config.stations_of(wb.id) for v in s.variables})
-    frame = daily_means(engine, stations=list(basin_of), variables=variables, anchor=anchor, start=start, end=end)
+    frame = daily_means(engine, stations=list(basin_of), variables=variables, anchor=anchor, start=start, end=end,
+                        available=available)
     if frame.empty:
         return pd.DataFrame(columns=["basin_id", "variable", "day_end_utc", "value", "n"])
     frame = frame.assign(basin_id=frame.station_id.map(basin_of))
@@ -85,9 +89,11 @@ def observed_daily(engine: Engine, config: Config, wb: WaterBodyConfig, anchor, 
 
 
 def water_body_pairs(runs_engine: Engine, live: Engine, config: Config, wb: WaterBodyConfig, *,
-                     first=None, last=None, until=None, progress: Callable[[], None] | None = None) -> Pairs:
+                     first=None, last=None, until=None, progress: Callable[[], None] | None = None,
+                     available: Availability | None = None) -> Pairs:
     """Pairs of ``wb``'s runs stored in ``runs_engine`` (analysis in [first, last]) against the readings of
-    ``live`` (in day windows ending at or before ``until``, when given)."""
+    ``live`` (in day windows ending at or before ``until``, when given; of the readings ``available``
+    then, in a replay)."""
     runs = stored_runs(runs_engine, wb.id, first, last)
     thresholds = tuple(lv.chlorophyll_ugL for lv in wb.alerts.levels)
     members = load_forecast_members(runs_engine, runs.id.tolist())
@@ -105,7 +111,7 @@ def water_body_pairs(runs_engine: Engine, live: Engine, config: Config, wb: Wate
             end = pd.Timestamp(runs.analysis_utc.iloc[-1]) + (wb.alerts.horizon_days + 1) * DAY
             cache[tod] = observed_daily(live, config, wb, origin.to_pydatetime(),
                                         pd.Timestamp(runs.analysis_utc.iloc[0]) - DAY,
-                                        end if until is None else min(end, pd.Timestamp(until)))
+                                        end if until is None else min(end, pd.Timestamp(until)), available)
         daily = cache[tod]
         if not isinstance(daily, dict):
             daily = cache[tod] = {key: g.set_index("day_end_utc") for key, g in daily.groupby(["basin_id", "variable"])}

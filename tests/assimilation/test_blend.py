@@ -62,46 +62,46 @@ def test_the_objective_gradient_matches_finite_differences():
 
     rng = np.random.default_rng(7)
     mu, sd, y = rng.normal(size=(120, 3)), rng.uniform(0.1, 1.0, (120, 3)), rng.normal(size=120)
-    theta = np.array([0.3, -0.5, 0.1, 0.2, np.log(1.3)])
+    theta = np.array([0.3, -0.5, 0.1, np.log(1.3)])
     err = check_grad(lambda t: bl.combination_objective(t, mu, sd, y)[0],
                      lambda t: bl.combination_objective(t, mu, sd, y)[1], theta)
     assert err < 1e-6
 
 
-def test_the_fitted_combination_finds_the_informative_component_and_the_bias():
-    """Synthetic truth: y = x + N(0, 0.3²); component "good" is centred on x + 0.2 (sd 0.3), "noise"
-    on pure noise (sd 1). Minimum-CRPS estimation (Gneiting et al. 2005) should put nearly all weight
-    on "good", learn the +0.2 bias, and give a spread factor near one."""
+def test_the_fitted_combination_finds_the_informative_component_and_its_spread():
+    """Synthetic truth: y = x + N(0, 0.3²); component "good" is centred on x (sd 0.15, too narrow),
+    "noise" on pure noise (sd 1). Minimum-CRPS estimation (Gneiting et al. 2005) should put nearly all
+    weight on "good" and widen its spread to the true error sd."""
     rng = np.random.default_rng(8)
     n = 2000
     x = rng.normal(0, 1, n)
     y = x + rng.normal(0, 0.3, n)
-    mu = np.column_stack([x + 0.2, rng.normal(0, 1, n)])
-    sd = np.column_stack([np.full(n, 0.3), np.full(n, 1.0)])
-    w, a, s = bl.fit_combination(mu, sd, y, np.array([0.5, 0.5]))
-    assert w[0] > 0.9 and a == pytest.approx(0.2, abs=0.03)
+    mu = np.column_stack([x, rng.normal(0, 1, n)])
+    sd = np.column_stack([np.full(n, 0.15), np.full(n, 1.0)])
+    w, s = bl.fit_combination(mu, sd, y, np.array([0.5, 0.5]))
+    assert w[0] > 0.9
     # the combined sd s·(w·σ) should match the true error sd 0.3
     assert s * (w @ sd[0]) == pytest.approx(0.3, abs=0.05)
 
 
 def test_shrinkage_gives_the_prior_without_cases_and_the_fit_with_many():
     prior = {"process_model": 0.4, "persistence_ensemble": 0.3, "statistical": 0.3}
-    fitted = (np.array([0.0, 0.2, 0.8]), 0.3, 2.0)
+    fitted = (np.array([0.0, 0.2, 0.8]), 2.0)
     names = ["process_model", "persistence_ensemble", "statistical"]
     none = bl.shrink_settings(names, fitted, prior, 0, 20)
-    assert none.weights == pytest.approx(prior) and none.bias_ln == 0 and none.spread_factor == 1
+    assert none.weights == pytest.approx(prior) and none.spread_factor == 1
     many = bl.shrink_settings(names, fitted, prior, 10 ** 7, 20)
     assert many.weights.get("process_model", 0.0) == pytest.approx(0.0, abs=1e-5)
     assert many.weights["statistical"] == pytest.approx(0.8, abs=1e-5)
-    assert many.bias_ln == pytest.approx(0.3, abs=1e-5) and many.spread_factor == pytest.approx(2.0, abs=1e-4)
+    assert many.spread_factor == pytest.approx(2.0, abs=1e-4)
 
 
-def test_calibration_removes_the_bias_and_scales_the_spread_about_the_mean():
+def test_calibration_scales_the_spread_about_the_mean():
     z = np.array([0.0, 1.0, 2.0, 3.0])
-    out = bl.calibrate(z, bias_ln=0.5, spread_factor=2.0)
-    assert out.mean() == pytest.approx(z.mean() - 0.5)
+    out = bl.calibrate(z, spread_factor=2.0)
+    assert out.mean() == pytest.approx(z.mean())
     assert out.std() == pytest.approx(2.0 * z.std())
-    assert bl.calibrate(z, 0.0, 100.0).std() == pytest.approx(bl.SPREAD_FACTOR_BOUNDS[1] * z.std())
+    assert bl.calibrate(z, 100.0).std() == pytest.approx(bl.SPREAD_FACTOR_BOUNDS[1] * z.std())
 
 
 def test_ecc_gives_the_calibrated_values_the_rank_order_of_the_process_members():
@@ -112,25 +112,24 @@ def test_ecc_gives_the_calibrated_values_the_rank_order_of_the_process_members()
     assert stats.spearmanr(out, template).statistic == pytest.approx(1.0)
 
 
-def test_a_biased_overconfident_forecast_calibrated_on_its_record_covers_new_days_as_it_should():
-    """A seeded synthetic check of the EMOS idea (Gneiting et al. 2005): learn the bias and spread of a
-    forecaster on 300 days, apply them to 300 new days, and the 90 % interval covers ≈ 90 %."""
+def test_an_overconfident_forecast_calibrated_on_its_record_covers_new_days_as_it_should():
+    """A seeded synthetic check of the EMOS idea (Gneiting et al. 2005): learn the spread of a forecaster
+    on 300 days, apply it to 300 new days, and the 90 % interval covers ≈ 90 %."""
     from monitor.forecasting.blend_setup import lead_settings
 
     rng = np.random.default_rng(3)
     m, days = 60, 600
     signal = rng.normal(1.5, 0.8, days)
     observed = np.exp(signal + rng.normal(0, 0.4, days))          # truth: log error sd 0.4
-    members = np.exp(signal[:, None] - 0.3 + rng.normal(0, 0.1, (days, m)))   # biased low, far too narrow
+    members = np.exp(signal[:, None] + rng.normal(0, 0.1, (days, m)))   # far too narrow
     logm = np.log(members)
-    record = pd.DataFrame({"run_id": np.arange(300), "basin_id": "main", "forecaster": "process_model",
+    record = pd.DataFrame({"run_id": np.arange(300), "basin_id": "main", "lead_days": 1, "forecaster": "process_model",
                            "members": m, "observed": observed[:300], "log_mean": logm[:300].mean(axis=1),
                            "log_sd": logm[:300].std(axis=1, ddof=1), "crps": 1.0})
     s = lead_settings(record)
     assert s.weights["process_model"] > 0.9
-    assert s.bias_ln == pytest.approx(-0.3 * 300 / 320, abs=0.06)
     assert s.spread_factor > 2.5
-    cal = np.exp(np.stack([bl.calibrate(z, s.bias_ln, s.spread_factor) for z in logm[300:]]))
+    cal = np.exp(np.stack([bl.calibrate(z, s.spread_factor) for z in logm[300:]]))
     lo, hi = np.quantile(cal, [0.05, 0.95], axis=1)
     before = np.mean((np.quantile(members[300:], 0.05, axis=1) <= observed[300:])
                      & (observed[300:] <= np.quantile(members[300:], 0.95, axis=1)))
@@ -138,3 +137,24 @@ def test_a_biased_overconfident_forecast_calibrated_on_its_record_covers_new_day
     assert before < 0.4 and 0.84 <= after <= 0.96
     assert np.mean(scores.crps_ensemble(cal.T, observed[300:])) < np.mean(scores.crps_ensemble(members[300:].T,
                                                                                                  observed[300:]))
+
+
+def test_the_case_table_holds_what_a_pandas_pivot_of_the_records_holds():
+    from monitor.forecasting.blend_setup import COMPONENTS, case_table
+
+    rng = np.random.default_rng(9)
+    rows = [dict(run_id=r, basin_id=b, lead_days=k, forecaster=f, log_mean=rng.normal(), log_sd=rng.uniform(.1, 1),
+                 observed=float(np.exp(r % 7 + k)))
+            for r in range(40) for b in ("east", "west") for k in (1, 2) for f in (*COMPONENTS, "persistence")
+            if rng.uniform() > 0.2]
+    records = pd.DataFrame(rows)
+    table = case_table(records)
+    for k, cases in table.items():
+        sub = records[(records.lead_days == k) & records.forecaster.isin(COMPONENTS)]
+        ref = sub.pivot_table(index=["run_id", "basin_id"], columns="forecaster", values="log_mean", sort=False)
+        got = pd.DataFrame(cases.mu, columns=COMPONENTS)
+        # same set of (run, basin) rows and the same value in every cell (pandas pivot_table)
+        assert len(got) == len(ref)
+        np.testing.assert_allclose(np.sort(got[list(ref.columns)].fillna(-99).to_numpy(), axis=0),
+                                   np.sort(ref.fillna(-99).to_numpy(), axis=0))
+        assert np.all(np.isfinite(cases.y))

@@ -124,3 +124,54 @@ def test_hostile_text_is_stored_verbatim_as_data(tmp_path, engine):
     raw = rejected_rows_frame(engine)["raw"].tolist()
     assert "DROP TABLE readings" in raw[0] and "\\x00" in raw[1]
     assert readings_frame(engine, max_flag=9).empty  # and the table is still there
+
+
+# fernwater's time zone Etc/GMT-2 (UTC+2): the whole day 2026-07-01 ends at 2026-07-02 00:00 local = 22:00 UTC,
+# the very time of an instant reading at local midnight
+WHOLE_DAY = b"2026-07-01,FW-LAB,chlorophyll_a,12,ug/L\n"
+MIDNIGHT = b"2026-07-02T00:00,FW-LAB,chlorophyll_a,11,ug/L\n"
+LAB_HEADER = b"sampled_at,site,variable,value,unit\n"
+
+
+def test_a_whole_day_value_and_an_instant_reading_at_local_midnight_are_two_readings_on_both_backends(tmp_path,
+                                                                                                     engine):
+    import dataclasses
+
+    config = fernwater(tmp_path)
+    feed = dataclasses.replace(config.feed("lab"), time_format="iso")
+    r1 = ingest_bytes(engine, config, feed, LAB_HEADER + WHOLE_DAY + MIDNIGHT, "lab/a.csv", now=NOW)
+    assert (r1.accepted, r1.duplicate, r1.rejected) == (2, 0, 0)  # one batch: no repeat, no conflict
+    r2 = ingest_bytes(engine, config, feed, LAB_HEADER + MIDNIGHT + WHOLE_DAY, "lab/b.csv", now=NOW)
+    assert (r2.accepted, r2.duplicate, r2.rejected) == (0, 2, 0)  # each matches its own stored reading
+    r3 = ingest_bytes(engine, config, feed, LAB_HEADER + b"2026-07-01,FW-LAB,chlorophyll_a,13,ug/L\n", "lab/c.csv",
+                      now=NOW)
+    assert r3.rejected == 1
+    assert "stored 12.0, received 13.0" in rejected_rows_frame(engine).reason.iloc[-1]  # the whole-day one
+    stored = readings_frame(engine, variables=["chlorophyll_a"], max_flag=9)
+    assert stored.time_utc.tolist() == [pd.Timestamp("2026-07-01 22:00", tz="UTC")] * 2
+    assert sorted(zip(stored.whole_day, stored.value)) == [(False, 11.0), (True, 12.0)]
+
+
+def test_the_whole_day_key_migration_keeps_the_stored_readings_on_both_backends(tmp_path, engine):
+    """0007_whole_day_key on a store at 0006_realdata holding a whole-day value: kept, and an instant
+    reading at the same time can then join it; down again while only one of them is stored."""
+    import dataclasses
+
+    from alembic import command
+
+    from monitor.store.db import alembic_config, upgrade
+
+    def to(revision, down=False):
+        cfg = alembic_config(engine)
+        with engine.begin() as conn:
+            cfg.attributes["connection"] = conn
+            (command.downgrade if down else command.upgrade)(cfg, revision)
+
+    config = fernwater(tmp_path)
+    feed = dataclasses.replace(config.feed("lab"), time_format="iso")
+    assert ingest_bytes(engine, config, feed, LAB_HEADER + WHOLE_DAY, "lab/a.csv", now=NOW).accepted == 1
+    to("0006_realdata", down=True)
+    upgrade(engine)
+    assert ingest_bytes(engine, config, feed, LAB_HEADER + MIDNIGHT, "lab/b.csv", now=NOW).accepted == 1
+    stored = readings_frame(engine, variables=["chlorophyll_a"], max_flag=9)
+    assert sorted(zip(stored.whole_day, stored.value)) == [(False, 11.0), (True, 12.0)]
