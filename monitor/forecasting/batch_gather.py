@@ -36,7 +36,7 @@ from sqlalchemy.engine import Engine
 
 from monitor.config import Config, WaterBodyConfig
 from monitor.forecasting import cycle
-from monitor.forecasting.blend_setup import RECORD_DAYS
+from monitor.forecasting.blend_setup import COMPONENTS, RECORD_DAYS
 from monitor.forecasting.history import HISTORY_VARIABLES, basin_stations, history_windows
 from monitor.forecasting.late import replay_availability
 from monitor.forecasting.observations import OBSERVED_VARIABLES
@@ -245,9 +245,11 @@ def _history_daily(engine: Engine, config: Config, bodies: Sequence[WaterBodyCon
 
 
 def _records(engine: Engine, water_body_ids: Sequence[str], since: dt.datetime) -> dict[str, pd.DataFrame]:
-    """Per water body, what :func:`monitor.verification.live.stored_records` returns (valid since ``since``)."""
+    """Per water body, what :func:`monitor.verification.live.stored_records` returns (valid since ``since``,
+    of the blend's ``COMPONENTS``)."""
     t = schema.forecast_scores
-    q = select(t).where(t.c.water_body_id.in_(list(water_body_ids)), t.c.valid_utc >= since)
+    q = select(t).where(t.c.water_body_id.in_(list(water_body_ids)), t.c.valid_utc >= since,
+                         t.c.forecaster.in_(COMPONENTS))
     with engine.connect() as conn:
         frame = pd.DataFrame(conn.execute(q).mappings().all())
     if frame.empty:

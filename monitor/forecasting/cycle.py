@@ -40,7 +40,7 @@ from monitor.alerting import webhooks
 from monitor.config import Config, WaterBodyConfig
 from monitor.config.model_setup import chlorophyll_sensors, filter_config, model_spec
 from monitor.forecasting.baselines import baseline_members
-from monitor.forecasting.blend_setup import RECORD_DAYS, blend_settings
+from monitor.forecasting.blend_setup import COMPONENTS, RECORD_DAYS, blend_settings
 from monitor.forecasting.drivers import StationSeries, driver_stations, forecast_drivers, observed_drivers
 from monitor.forecasting.history import (
     OBSERVED_BY,
@@ -255,7 +255,8 @@ class FetchedInputs:
     weather: pd.DataFrame
     #: daily means per history window (:func:`monitor.forecasting.history.history_daily`)
     history_daily: list[pd.DataFrame]
-    #: the verified record of the blend's window (:func:`monitor.verification.live.stored_records`)
+    #: the verified record of the blend's components in its window (as
+    #: :func:`monitor.forecasting.blend_setup.read_blend_settings` reads it)
     records: pd.DataFrame
     #: in a replay, what the readings above were restricted to (:func:`monitor.forecasting.late.replay_availability`)
     available: Availability | None = None
@@ -318,7 +319,8 @@ def fetch(engine: Engine, config: Config, wb: WaterBodyConfig, analysis: dt.date
         first_guess_readings=(station_readings(engine, config, wb, *first_guess_window(start), available=available)
                               if blob is None else None),
         weather=weather, history_daily=history_daily(engine, config, wb, analysis, available=available),
-        records=stored_records(engine, wb.id, since=analysis - dt.timedelta(days=RECORD_DAYS)), available=available)
+        records=stored_records(engine, wb.id, since=analysis - dt.timedelta(days=RECORD_DAYS), forecasters=COMPONENTS),
+        available=available)
 
 
 def assemble(config: Config, wb: WaterBodyConfig, raw: FetchedInputs) -> CycleInputs:
