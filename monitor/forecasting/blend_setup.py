@@ -7,8 +7,10 @@ runs in which every component in use was verified on the same day (a
 component verified in fewer than half of the cases is left out of the fit).
 On those cases the component weights and the spread factor are fitted
 together by minimum-CRPS estimation
-(:func:`assimilation.blend.fit_combination`; EMOS, Gneiting et al. 2005),
-then shrunk towards the priors with the weight of ``PRIOR_DAYS`` cases
+(:func:`assimilation.blend.fit_combination`; EMOS, Gneiting et al. 2005), the
+spread factor raised where needed so that the central 90 % interval covers
+90 % of the cases (:func:`assimilation.blend.coverage_spread_factor`), then
+shrunk towards the priors with the weight of ``PRIOR_DAYS`` cases
 (:func:`assimilation.blend.shrink_settings`).
 
 With fewer than ``MIN_CASES`` cases the documented priors apply: the process
@@ -29,7 +31,7 @@ import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
-from assimilation.blend import LeadSettings, fit_combination, shrink_settings
+from assimilation.blend import SPREAD_FACTOR_BOUNDS, LeadSettings, coverage_spread_factor, fit_combination, shrink_settings
 from assimilation.scores import LOG_FLOOR_UGL
 from monitor.config import WaterBodyConfig
 from monitor.forecasting.history import OBSERVED_BY
@@ -45,6 +47,8 @@ PRIOR_DAYS = 20
 RECORD_DAYS = 60
 #: Cases (verified days with every component) needed before the record is fitted at all.
 MIN_CASES = 10
+#: The central interval whose coverage on the record the spread is raised to meet.
+COVERAGE = 0.90
 #: Share of the cases a component must be verified in to take part in the fit.
 MIN_COMPONENT_SHARE = 0.5
 
@@ -91,8 +95,10 @@ def fit_lead(cases: Cases) -> LeadSettings:
         return _PRIOR
     names = [COMPONENTS[i] for i in keep]
     prior = np.array([PRIOR_WEIGHTS.get(c, 0.0) for c in names]) + 1e-3
-    fitted = fit_combination(cases.mu[rows][:, keep], cases.sd[rows][:, keep], cases.y[rows], prior)
-    return shrink_settings(names, fitted, PRIOR_WEIGHTS, int(rows.sum()), PRIOR_DAYS)
+    mu, sd, y = cases.mu[rows][:, keep], cases.sd[rows][:, keep], cases.y[rows]
+    weights, spread = fit_combination(mu, sd, y, prior)
+    spread = min(max(spread, coverage_spread_factor(mu, sd, y, weights, COVERAGE)), SPREAD_FACTOR_BOUNDS[1])
+    return shrink_settings(names, (weights, spread), PRIOR_WEIGHTS, int(rows.sum()), PRIOR_DAYS)
 
 
 def lead_settings(records: pd.DataFrame) -> LeadSettings:
