@@ -226,3 +226,40 @@ def shrink_settings(names: list[str], fitted: tuple[np.ndarray, float], prior: d
     total = sum(w.values())
     return LeadSettings({k: v / total for k, v in w.items() if v > 0},
                         spread_factor=float(np.exp(alpha * np.log(s))))
+
+
+def pooled_probabilities(components: dict[str, np.ndarray], process: str, settings: list[LeadSettings],
+                         thresholds) -> tuple[np.ndarray, np.ndarray]:
+    """The blend's probabilities of reaching each threshold: per day (K + 1, L) and on any day 1..K (L,).
+
+    A linear opinion pool (Stone 1961, Ann. Math. Stat. 32:1339; Genest & Zidek 1986, Stat. Sci.
+    1:114): the weighted mean of the components' probabilities, with the blend's weights of each
+    lead. Unlike the quantile average, which is sharper and scores better on the whole
+    distribution, a pool keeps the share of probability of a bloom that one component foresees,
+    so a warning is not held back because the statistical forecasts, which cannot foresee growth,
+    do not see it. Within the horizon the process model's probability is the fraction of its
+    members (trajectories) that reach the threshold on any day; a statistical forecast, whose
+    members are per-day marginals, counts its largest daily probability (a lower bound); each
+    component weighs with its mean weight over the leads. Day 0 is the process model's.
+    """
+    thr = np.asarray(thresholds, dtype=float).reshape(-1)
+    base = np.asarray(components[process], dtype=float)
+    K1 = base.shape[0]
+    daily = np.zeros((K1, thr.size))
+    daily[0] = (base[0][:, None] >= thr).mean(axis=0)
+    any_day = {process: (base[1:].max(axis=0)[:, None] >= thr).mean(axis=0)}
+    weight_sum: dict[str, float] = {}
+    for k in range(1, K1):
+        rows = {name: np.asarray(a, dtype=float)[k] for name, a in components.items()}
+        rows = {name: r for name, r in rows.items() if np.all(np.isfinite(r))}
+        weights = {c: w for c, w in settings[k - 1].weights.items() if c in rows and w > 0} or {process: 1.0}
+        total = sum(weights.values())
+        for c, w in weights.items():
+            p = (rows[c][:, None] >= thr).mean(axis=0)
+            daily[k] += w / total * p
+            weight_sum[c] = weight_sum.get(c, 0.0) + w / total / (K1 - 1)
+            if c != process:
+                any_day[c] = np.maximum(any_day.get(c, 0.0), p)
+    total = sum(weight_sum.values())
+    horizon = sum(w / total * any_day[c] for c, w in weight_sum.items()) if total > 0 else any_day[process]
+    return daily, np.asarray(horizon, dtype=float)

@@ -11,15 +11,18 @@ verification is multiplied back, so each is scored against what the sensor
 reads. Besides the published members (``bloomline``), the process model's
 own (``process_model``), the calibrated blend (``blend``) and the uncalibrated
 blend (``blend_raw``, from which the calibration is learnt) are stored for
-verification. Which of the blend and the process model is published is the
-``[filter] published`` setting (default the blend).
+verification. The published probabilities of reaching each alert level (and
+so the alerts) are the linear pool of the components' probabilities with the
+blend's weights (:func:`assimilation.blend.pooled_probabilities`), the
+quantiles those of the blended members. Which of the blend and the process
+model is published is the ``[filter] published`` setting (default the blend).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from assimilation.blend import LeadSettings, blend
+from assimilation.blend import LeadSettings, blend, pooled_probabilities
 from assimilation.forecast import DailyForecast, member_statistics
 from monitor.forecasting.blend_setup import BLEND, PROCESS, UNCALIBRATED
 from monitor.forecasting.history import OBSERVED_BY
@@ -49,6 +52,8 @@ def publish(forecasts: dict[str, DailyForecast], baselines: list, basin_ids: tup
         if fc is None:
             continue
         members = fc.members.copy()
+        thr = thresholds.get(quantity, ())
+        pooled: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         blended_any = False
         for b, basin in enumerate(basin_ids):
             variable = verified_by.get((basin, quantity))
@@ -60,8 +65,10 @@ def publish(forecasts: dict[str, DailyForecast], baselines: list, basin_ids: tup
             components = {PROCESS: process}
             components.update({name: a / gain for (bb, q, name), a in issued.items() if bb == basin and q == quantity
                                and name != "persistence"})
-            out, raw = blend(components, PROCESS, settings.get(quantity) or [LeadSettings({PROCESS: 1.0})]
-                             * (process.shape[0] - 1))
+            lead_settings = settings.get(quantity) or [LeadSettings({PROCESS: 1.0})] * (process.shape[0] - 1)
+            out, raw = blend(components, PROCESS, lead_settings)
+            if len(thr):
+                pooled[b] = pooled_probabilities(components, PROCESS, lead_settings, thr)
             members[:, :, b] = out
             blended_any = True
             process_seen = process * (member_gain[None, :] if member_gain is not None else 1.0)
@@ -70,5 +77,9 @@ def publish(forecasts: dict[str, DailyForecast], baselines: list, basin_ids: tup
                      (basin, quantity, BLEND, variable, out * gain),
                      (basin, quantity, UNCALIBRATED, variable, raw * gain)]
         if blended_any and publish_blend:
-            published[quantity] = member_statistics(fc.day_end_d, members, thresholds.get(quantity, ()))
+            stats = member_statistics(fc.day_end_d, members, thr)
+            for b, (daily, horizon) in pooled.items():
+                stats.exceedance[:, b, :] = daily
+                stats.horizon_exceedance[b, :] = horizon
+            published[quantity] = stats
     return published, rows

@@ -174,3 +174,28 @@ def test_with_heavy_tailed_errors_the_coverage_floor_restores_the_90_percent_int
     cover = lambda s: np.mean(np.abs(y[2000:] - x[2000:]) <= half * s * 0.3)  # noqa: E731
     assert cover(s_crps) < 0.88
     assert s_cov > s_crps and abs(cover(s_cov) - 0.90) < 0.02
+
+
+def test_pooled_probabilities_of_the_process_alone_are_its_member_fractions():
+    from assimilation.forecast import member_statistics
+
+    rng = np.random.default_rng(11)
+    process = rng.lognormal(1.0, 0.6, (8, 60))
+    settings = [bl.LeadSettings({"process_model": 1.0})] * 7
+    daily, horizon = bl.pooled_probabilities({"process_model": process}, "process_model", settings, (3.0, 6.0))
+    stats_ = member_statistics(np.arange(8.0), process[:, :, None], (3.0, 6.0))
+    np.testing.assert_allclose(daily, stats_.exceedance[:, 0, :])
+    np.testing.assert_allclose(horizon, stats_.horizon_exceedance[0])
+
+
+def test_pooled_probabilities_are_the_weighted_mean_of_the_components():
+    """A linear opinion pool (Stone 1961): with weights 0.25 / 0.75, P = 0.25·P_a + 0.75·P_b per day; within
+    the horizon the statistical component counts its largest daily probability."""
+    K1, m = 4, 40
+    a = np.tile(np.linspace(0, 10, m), (K1, 1))                 # P(≥ 5) = 0.5 every day, any day 0.5
+    b = np.full((K1, m), 1.0)
+    b[2, :10] = 9.0                                              # P(≥ 5) = 0.25 on day 2 only
+    settings = [bl.LeadSettings({"process_model": 0.25, "statistical": 0.75})] * 3
+    daily, horizon = bl.pooled_probabilities({"process_model": a, "statistical": b}, "process_model", settings, (5.0,))
+    np.testing.assert_allclose(daily[1:, 0], [0.25 * 0.5, 0.25 * 0.5 + 0.75 * 0.25, 0.25 * 0.5])
+    assert horizon[0] == pytest.approx(0.25 * 0.5 + 0.75 * 0.25)
