@@ -74,31 +74,10 @@ def _coefficients_from_leads(forecast, z_last, future):
     return np.array([c, phi, beta]), (z[-1, 0] - z[0, 0]) / _spread_width(z.shape[0])
 
 
-def test_ar1_on_a_gap_free_series_matches_statsmodels_autoreg():
-    days, z, temp = _simulated_ar1(seed=1, n=600, c=0.4, phi=0.7, beta=0.04, sigma=0.25)
-    origin = 500
-    fc = bl.ar1_forecast(days, np.exp(z), days[origin], HORIZON, temperature_C=temp)
-    assert fc.method == "ar1" and fc.note == ""
-    np.testing.assert_array_equal(fc.valid_day_d, days[origin] + np.arange(1, HORIZON + 1))
-    # reference: statsmodels AutoReg fitted by OLS on the same series, forecast with the last temperature held
-    direct = AutoReg(z[: origin + 1], lags=1, trend="c", exog=temp[: origin + 1]).fit()
-    held = np.full((HORIZON, 1), temp[origin])
-    log_members = _log_members(fc)
-    np.testing.assert_allclose(log_members.mean(axis=0), direct.forecast(HORIZON, exog=held), atol=1e-8)
-    # AutoReg's sd uses sigma2 = SSR/n; Bloomline's the OLS scale SSR/(n − k)
-    prediction = direct.get_prediction(start=origin + 1, end=origin + HORIZON, exog_oos=held)
-    sd = np.sqrt(prediction.var_pred_mean * direct.nobs / (direct.nobs - direct.params.size))
-    np.testing.assert_allclose((log_members[-1] - log_members[0]) / _spread_width(log_members.shape[0]), sd,
-                               rtol=1e-8)
-
-
-@pytest.mark.parametrize("order", [2, 3])
-def test_ar_of_higher_order_on_a_gap_free_series_matches_statsmodels_autoreg(order):
-    days, z, temp = _simulated_ar1(seed=11, n=600, c=0.4, phi=0.7, beta=0.04, sigma=0.25)
-    origin = 500
-    fc = bl.ar_forecast(days, np.exp(z), days[origin], HORIZON, order=order, temperature_C=temp)
-    assert fc.method == f"ar{order}"
-    # reference: statsmodels AutoReg (OLS on the same lags), its dynamic forecast and prediction variance
+def _assert_matches_autoreg(fc, z, temp, origin, order):
+    """Reference: statsmodels AutoReg fitted by OLS on the same lags, its dynamic forecast with the last
+    temperature held and its prediction variance (AutoReg's sigma2 = SSR/n; Bloomline's the OLS scale
+    SSR/(n − k))."""
     direct = AutoReg(z[: origin + 1], lags=order, trend="c", exog=temp[: origin + 1]).fit()
     held = np.full((HORIZON, 1), temp[origin])
     log_members = _log_members(fc)
@@ -107,6 +86,24 @@ def test_ar_of_higher_order_on_a_gap_free_series_matches_statsmodels_autoreg(ord
     sd = np.sqrt(prediction.var_pred_mean * direct.nobs / (direct.nobs - direct.params.size))
     np.testing.assert_allclose((log_members[-1] - log_members[0]) / _spread_width(log_members.shape[0]), sd,
                                rtol=1e-8)
+
+
+def test_ar1_on_a_gap_free_series_matches_statsmodels_autoreg():
+    days, z, temp = _simulated_ar1(seed=1, n=600, c=0.4, phi=0.7, beta=0.04, sigma=0.25)
+    origin = 500
+    fc = bl.ar1_forecast(days, np.exp(z), days[origin], HORIZON, temperature_C=temp)
+    assert fc.method == "ar1" and fc.note == ""
+    np.testing.assert_array_equal(fc.valid_day_d, days[origin] + np.arange(1, HORIZON + 1))
+    _assert_matches_autoreg(fc, z, temp, origin, 1)
+
+
+@pytest.mark.parametrize("order", [2, 3])
+def test_ar_of_higher_order_on_a_gap_free_series_matches_statsmodels_autoreg(order):
+    days, z, temp = _simulated_ar1(seed=11, n=600, c=0.4, phi=0.7, beta=0.04, sigma=0.25)
+    origin = 500
+    fc = bl.ar_forecast(days, np.exp(z), days[origin], HORIZON, order=order, temperature_C=temp)
+    assert fc.method == f"ar{order}"
+    _assert_matches_autoreg(fc, z, temp, origin, order)
 
 
 def test_the_order_average_is_the_quantile_average_of_the_orders():
