@@ -31,9 +31,10 @@ def accept(*names: str) -> None:
 
 
 def integer(name: str, default: int | None, *, minimum: int, maximum: int) -> int | None:
-    """An integer parameter in [minimum, maximum], or ``default`` when absent."""
+    """An integer parameter in [minimum, maximum], or ``default`` when absent (an empty value is not
+    an integer: 400, as the OpenAPI document's integer type says)."""
     value = request.args.get(name)
-    if value is None or value == "":
+    if value is None:
         return default
     text = value.strip()
     if not (text.isascii() and text.lstrip("+-").isdigit()) or len(text) > 20:

@@ -31,7 +31,9 @@ def test_page_and_chart_numbers_out_of_range_are_400(client, url):
 
 
 @pytest.mark.parametrize("url", [f"{WB}/runs?limit=abc", f"{WB}/history?limit=abc", f"{WB}/alert-events?limit=abc",
-                                 f"{WB}/runs?limit=0", f"{WB}/runs?offset=-1", f"{WB}/runs?limit=1.5"])
+                                 f"{WB}/runs?limit=0", f"{WB}/runs?offset=-1", f"{WB}/runs?limit=1.5",
+                                 f"{WB}/runs?limit=", "/api/v1/water-bodies?page=&level=6",
+                                 "/api/v1/status?per_page="])
 def test_a_malformed_number_is_400_on_every_endpoint(client, url):
     assert client.get(url).status_code == 400
 
