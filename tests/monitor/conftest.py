@@ -8,6 +8,7 @@ and dropped by the fixture, so test runs do not collide.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import uuid
 from pathlib import Path
@@ -121,3 +122,9 @@ def quarter_hours(start: str, n: int) -> list[str]:
     """n local time strings 15 minutes apart from ``start`` ("YYYY-MM-DD HH:MM")."""
     t0 = dt.datetime.strptime(start, "%Y-%m-%d %H:%M")
     return [(t0 + dt.timedelta(minutes=15 * i)).strftime("%Y-%m-%d %H:%M") for i in range(n)]
+
+
+def lab_csv(config, *rows: str):
+    """(fernwater's lab feed reading ISO times, a CSV payload of ``rows`` under its header)."""
+    feed = dataclasses.replace(config.feed("lab"), time_format="iso")
+    return feed, ("sampled_at,site,variable,value,unit\n" + "".join(r + "\n" for r in rows)).encode()

@@ -3,14 +3,13 @@ censored readings reach the filter with their limits."""
 
 from __future__ import annotations
 
-import dataclasses
 import datetime as dt
 
 import numpy as np
 
 from monitor.forecasting.cycle import gather
 from monitor.ingest.batches import ingest_bytes
-from tests.monitor.conftest import NOW, fernwater
+from tests.monitor.conftest import NOW, fernwater, lab_csv
 
 UTC = dt.UTC
 
@@ -18,10 +17,7 @@ UTC = dt.UTC
 def test_a_days_value_is_not_seen_by_the_cycle_at_its_start_and_is_seen_by_the_cycle_at_its_end(
         tmp_path, sqlite_engine):
     config = fernwater(tmp_path)
-    feed = dataclasses.replace(config.feed("lab"), time_format="iso")
-    payload = (b"sampled_at,site,variable,value,unit\n"
-               b"2026-07-02,FW-LAB,chlorophyll_a,12,ug/L\n"
-               b"2026-07-02T10:00,FW-LAB,srp,<2,ug/L\n")
+    feed, payload = lab_csv(config, "2026-07-02,FW-LAB,chlorophyll_a,12,ug/L", "2026-07-02T10:00,FW-LAB,srp,<2,ug/L")
     r = ingest_bytes(sqlite_engine, config, feed, payload, "lab/a.csv", now=NOW)
     assert (r.accepted, r.rejected) == (2, 0)
     wb = config.water_body("fernwater")

@@ -3,8 +3,6 @@ stamped at the end of that day and marked ``whole_day`` in the store."""
 
 from __future__ import annotations
 
-import dataclasses
-
 import numpy as np
 import pandas as pd
 import pytest
@@ -13,7 +11,7 @@ from monitor.ingest.batches import ingest_bytes
 from monitor.ingest.cells import date_only, day_ends
 from monitor.ingest.parsing import parse_payload
 from monitor.store.readings import readings_frame
-from tests.monitor.conftest import NOW, fernwater
+from tests.monitor.conftest import NOW, fernwater, lab_csv
 
 
 def utc_ns(s: str) -> int:
@@ -46,10 +44,7 @@ def config(tmp_path):
 
 
 def test_a_date_without_time_is_a_whole_day_value_at_the_end_of_the_water_bodys_local_day(config):
-    feed = dataclasses.replace(config.feed("lab"), time_format="iso")
-    payload = (b"sampled_at,site,variable,value,unit\n"
-               b"2026-07-01,FW-LAB,chlorophyll_a,12,ug/L\n"
-               b"2026-07-01T10:00,FW-LAB,chlorophyll_a,11,ug/L\n")
+    feed, payload = lab_csv(config, "2026-07-01,FW-LAB,chlorophyll_a,12,ug/L", "2026-07-01T10:00,FW-LAB,chlorophyll_a,11,ug/L")
     p = parse_payload(payload, feed, config, now=NOW)
     assert not p.rejected
     assert p.whole_day.tolist() == [True, False]
@@ -58,10 +53,7 @@ def test_a_date_without_time_is_a_whole_day_value_at_the_end_of_the_water_bodys_
 
 
 def test_a_whole_day_value_of_today_is_accepted_and_one_of_the_day_after_tomorrow_is_rejected(config):
-    feed = dataclasses.replace(config.feed("lab"), time_format="iso")
-    payload = (b"sampled_at,site,variable,value,unit\n"
-               b"2026-09-01,FW-LAB,chlorophyll_a,12,ug/L\n"
-               b"2026-09-03,FW-LAB,chlorophyll_a,11,ug/L\n")
+    feed, payload = lab_csv(config, "2026-09-01,FW-LAB,chlorophyll_a,12,ug/L", "2026-09-03,FW-LAB,chlorophyll_a,11,ug/L")
     p = parse_payload(payload, feed, config, now=NOW)
     assert p.whole_day.tolist() == [True]
     assert [r.reason for r in p.rejected] == ["time is more than a day in the future (clock or time zone wrong?)"]
@@ -70,10 +62,7 @@ def test_a_whole_day_value_of_today_is_accepted_and_one_of_the_day_after_tomorro
 @pytest.mark.postgres
 def test_whole_day_values_are_stored_marked_and_read_back(tmp_path, engine):
     config = fernwater(tmp_path)
-    feed = dataclasses.replace(config.feed("lab"), time_format="iso")
-    payload = (b"sampled_at,site,variable,value,unit\n"
-               b"2026-07-01,FW-LAB,chlorophyll_a,12,ug/L\n"
-               b"2026-07-02T10:00,FW-LAB,chlorophyll_a,11,ug/L\n")
+    feed, payload = lab_csv(config, "2026-07-01,FW-LAB,chlorophyll_a,12,ug/L", "2026-07-02T10:00,FW-LAB,chlorophyll_a,11,ug/L")
     r = ingest_bytes(engine, config, feed, payload, "lab/a.csv", now=NOW)
     assert (r.accepted, r.rejected) == (2, 0)
     again = ingest_bytes(engine, config, feed, payload + b"\n", "lab/b.csv", now=NOW)
